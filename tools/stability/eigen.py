@@ -1,0 +1,197 @@
+"""Leading eigenvalue of the normal-mode problem, with automatic truncation.
+
+The leading eigenvalue is the one of largest real part (growth rate
+``Re sigma``; the mode goes as ``exp(sigma t)``).  Small matrices go to the
+dense QR algorithm (LAPACK ``geev`` through ``scipy.linalg``); large ones to
+ARPACK in shift-invert mode (``scipy.sparse.linalg.eigs``) around a guess
+taken from a smaller truncation, with a sparse LU of the block-tridiagonal
+matrix.  If ARPACK fails to converge the dense solver is used instead.
+
+Truncation: the number of harmonics ``M`` grows by a factor 1.5 until the
+leading eigenvalue changes by less than ``rtol * scale``, with ``scale`` the
+laminar shear rate ``U_L kf / 2`` plus the viscous rate of the mode (so that
+the criterion is meaningful when ``sigma`` is near zero).  The history of
+``(M, sigma)`` is kept as the convergence report.
+"""
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import scipy.linalg as sla
+import scipy.sparse.linalg as spla
+
+from .operators import Operator, build
+from .params import FlowParams
+
+DENSE_MAX = 240      # matrix size up to which the dense solver is used
+M_START = 8
+M_MAX = 512
+RTOL = 1e-7
+
+
+@dataclasses.dataclass
+class Eigen:
+    """Result of one eigenvalue computation.
+
+    ``sigma``: leading eigenvalue (growth rate ``sigma.real``, the mode varies
+    as ``exp(i kx x + i kz z + sigma t)``); its conjugate is an eigenvalue too.
+    ``history``: list of ``(M, sigma)`` at the truncations tried;
+    ``change``: ``|sigma(M) - sigma(M_prev)|`` at the last step (``nan`` when
+    the truncation was fixed); ``vector``: eigenvector when asked for.
+    """
+
+    params: FlowParams
+    kx: float
+    kz: float
+    ky0: float
+    sigma: complex
+    M: int
+    method: str
+    converged: bool
+    change: float
+    history: list
+    vector: np.ndarray | None = None
+    operator: Operator | None = None
+
+    @property
+    def growth(self) -> float:
+        return float(self.sigma.real)
+
+    @property
+    def frequency(self) -> float:
+        """``|Im sigma|``: the eigenvalues come in conjugate pairs, so only the magnitude is defined."""
+        return float(abs(self.sigma.imag))
+
+
+def spectrum(op: Operator) -> np.ndarray:
+    """All eigenvalues (dense), sorted by decreasing real part."""
+    ev = sla.eigvals(op.dense(), check_finite=False, overwrite_a=True)
+    return ev[np.argsort(-ev.real, kind="stable")]
+
+
+def _candidates(ev, count=4):
+    """Up to ``count`` eigenvalues of largest real part, one per conjugate pair (Im >= 0)."""
+    ev = np.asarray(ev)
+    ev = ev[ev.imag >= -1e-12 * (1 + np.abs(ev))]
+    ev = ev[np.argsort(-ev.real, kind="stable")]
+    return [complex(z.real, abs(z.imag)) for z in ev[:count]]
+
+
+def _dense(op: Operator, vectors: bool):
+    A = op.dense()
+    if vectors:
+        ev, V = sla.eig(A, check_finite=False, overwrite_a=True)
+    else:
+        ev, V = sla.eigvals(A, check_finite=False, overwrite_a=True), None
+    return ev, V
+
+
+def _shift_invert(A, shift: complex, vectors: bool, nev: int = 4):
+    # a shift just right of the guess keeps the wanted eigenvalue the nearest one
+    shift = complex(shift.real + 1e-3 * (1 + abs(shift)), shift.imag)
+    ncv = min(A.shape[0] - 1, max(2 * nev + 1, 24))
+    try:
+        res = spla.eigs(A, k=nev, sigma=shift, which="LM", ncv=ncv, maxiter=400,
+                        return_eigenvectors=vectors)
+    except spla.ArpackNoConvergence as exc:
+        if exc.eigenvalues is None or len(exc.eigenvalues) == 0:
+            return None
+        res = (exc.eigenvalues, exc.eigenvectors) if vectors else exc.eigenvalues
+    except (RuntimeError, ValueError):
+        return None
+    return res if vectors else (res, None)
+
+
+def _best(ev, V):
+    i = int(np.argmax(np.asarray(ev).real))
+    s = complex(ev[i])
+    v = None
+    if V is not None:
+        v = V[:, i]
+        if s.imag < 0:
+            v = v.conj()
+    return complex(s.real, abs(s.imag)), v
+
+
+def leading(op: Operator, guesses=None, vectors: bool = False, method: str = "auto"):
+    """Leading eigenvalue (and eigenvector) of ``op``.
+
+    ``method``: ``"dense"``, ``"sparse"`` (needs ``guesses``) or ``"auto"``
+    (dense up to ``DENSE_MAX`` unknowns or without guesses).  The sparse
+    solver runs shift-invert around every guess and keeps the eigenvalue of
+    largest real part among all it found, so that a mode that overtakes the
+    guessed one as the truncation grows is not missed.  Returns
+    ``(sigma, vector_or_None, method_used, candidates)``; ``candidates`` are
+    the leading eigenvalues found, to be used as guesses at a larger
+    truncation.
+    """
+    if method not in ("auto", "dense", "sparse"):
+        raise ValueError(f"method: must be auto, dense or sparse, got {method!r}")
+    if isinstance(guesses, (complex, float, int)):
+        guesses = [complex(guesses)]
+    use_sparse = method == "sparse" or (method == "auto" and op.size > DENSE_MAX and guesses)
+    if use_sparse:
+        if not guesses:
+            raise ValueError("guesses: the sparse shift-invert solver needs guess eigenvalues")
+        A = op.sparse().astype(complex)
+        evs, vecs = [], []
+        for g in guesses:
+            out = _shift_invert(A, complex(g), vectors)
+            if out is None:
+                continue
+            evs.append(np.asarray(out[0]))
+            if vectors:
+                vecs.append(out[1])
+        if evs:
+            ev = np.concatenate(evs)
+            V = np.concatenate(vecs, axis=1) if vectors else None
+            s, v = _best(ev, V)
+            return s, v, "sparse", _candidates(ev, max(len(guesses), 1))
+    ev, V = _dense(op, vectors)
+    s, v = _best(ev, V)
+    return s, v, "dense", _candidates(ev)
+
+
+def rate_scale(params: FlowParams, kx: float, kz: float) -> float:
+    """Rate used to make truncation tolerances dimensionless: ``U_L kf/2 + |k_perp|^2/Re`` (or 1)."""
+    s = 0.5 * params.U_L * params.kf + params.nu * (kx * kx + kz * kz)
+    if params.model == "boussinesq" and params.B:
+        s += math.sqrt(params.B)
+    return s if s > 0 else 1.0
+
+
+def solve(params: FlowParams, kx: float, kz: float, ky0: float = 0.0, M: int | None = None,
+          rtol: float = RTOL, vectors: bool = False, method: str = "auto",
+          M_start: int = M_START, M_max: int = M_MAX) -> Eigen:
+    """Leading eigenvalue at ``(kx, kz, ky0)``.
+
+    With ``M`` given, that truncation is used as is.  Otherwise ``M`` starts at
+    ``M_start`` and grows by 1.5 until two successive leading eigenvalues differ
+    by less than ``rtol * rate_scale``; ``converged`` is False if ``M_max`` is
+    reached first.
+    """
+    if M is not None:
+        op = build(params, kx, kz, ky0, M)
+        s, v, how, _ = leading(op, vectors=vectors, method="dense" if method == "auto" else method)
+        return Eigen(params, kx, kz, ky0, s, M, how, True, math.nan, [(M, s)], v,
+                     op if vectors else None)
+    tol = rtol * rate_scale(params, kx, kz)
+    history = []
+    m = max(2, int(M_start))
+    prev = None
+    cands = None
+    while True:
+        op = build(params, kx, kz, ky0, m)
+        s, v, how, cands = leading(op, guesses=cands, vectors=vectors, method=method)
+        history.append((m, s))
+        if prev is not None and abs(s - prev) <= tol:
+            return Eigen(params, kx, kz, ky0, s, m, how, True, abs(s - prev), history, v,
+                         op if vectors else None)
+        if m >= M_max:
+            ch = abs(s - prev) if prev is not None else math.nan
+            return Eigen(params, kx, kz, ky0, s, m, how, False, ch, history, v,
+                         op if vectors else None)
+        prev = s
+        m = min(M_max, int(math.ceil(1.5 * m)))
