@@ -136,7 +136,9 @@ def test_warnings(tmp_path):
     assert "outside low-Peclet validity: Pe_turb" in w
     assert "too short to average" in w  # window ~ 250, about 25 tau < 50
     row2 = summarize_run(tmp_path, kmax_etaK_min=0.5, pe_turb_max=5.0, min_correlation_times=5.0)
-    assert row2["warnings"] == []
+    w2 = " | ".join(row2["warnings"])
+    for kind in ("under-resolved", "outside low-Peclet", "too short to average"):
+        assert kind not in w2
 
 
 def test_absent_quantity_and_boussinesq_parameters(tmp_path):
