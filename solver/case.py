@@ -1,0 +1,518 @@
+"""Case files: the schema of every key, validation, derived quantities.
+
+A case is a YAML mapping. Every key, its type, its allowed range and its
+default live in :data:`SCHEMA` (the single source for validation, for
+``shearmix check`` and for the README's key table). :func:`load_case` reads a
+file, applies ``--set key=value`` overrides, checks everything before any work
+starts and returns a :class:`Case`. Any problem raises :class:`CaseError`
+with one line that names the file, the key and what is allowed.
+"""
+from __future__ import annotations
+
+import ast
+import copy
+import difflib
+import math
+import operator
+import os
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import yaml
+
+MODELS = ("boussinesq", "lowpe")
+INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file")
+MODE_COMPONENTS = ("vortical", "poloidal", "T")
+FFTW_EFFORTS = ("estimate", "measure", "patient")
+
+
+class CaseError(ValueError):
+    """A case file or override that cannot be run; the message is one line."""
+
+
+@dataclass(frozen=True)
+class Key:
+    """One case-file key: its kind, default, allowed values and meaning."""
+
+    kind: str  # 'float', 'int', 'bool', 'str', 'length', 'choice', 'amplitude'
+    default: Any = None
+    doc: str = ""
+    lower: float | None = None
+    lower_open: bool = False
+    upper: float | None = None
+    choices: tuple = ()
+    optional: bool = True  # may be null / absent (model checks come later)
+
+    def allowed(self) -> str:
+        if self.kind == "choice":
+            return "one of " + ", ".join(self.choices)
+        if self.kind == "amplitude":
+            return "'laminar' (F0 = kf^2/Re), 'unit' (F0 = 1) or a number >= 0"
+        if self.kind == "bool":
+            return "true or false"
+        if self.kind == "str":
+            return "a string"
+        what = {"float": "a number", "int": "an integer",
+                "length": "a length such as 6.28 or '2*pi'"}[self.kind]
+        bounds = []
+        if self.lower is not None:
+            bounds.append(("> " if self.lower_open else ">= ") + _fmt(self.lower))
+        if self.upper is not None:
+            bounds.append("<= " + _fmt(self.upper))
+        return what + (" " + " and ".join(bounds) if bounds else "")
+
+
+def _fmt(x: float) -> str:
+    return f"{x:g}"
+
+
+#: Every key a case file may hold, with its default. ``None`` means "not set".
+SCHEMA: dict[str, Key] = {
+    "name": Key("str", "case", "name of the case, used for the run folder"),
+    "model": Key("choice", None, "equations: full Boussinesq or low-Peclet limit",
+                 choices=MODELS, optional=False),
+    "parameters.Re": Key("float", None, "Reynolds number", lower=0, lower_open=True,
+                         optional=False),
+    "parameters.B": Key("float", None, "buoyancy parameter (boussinesq)", lower=0),
+    "parameters.Pe": Key("float", None, "Peclet number (boussinesq: Pe or Pr; "
+                         "lowpe: optional, for T and the validity check)",
+                         lower=0, lower_open=True),
+    "parameters.Pr": Key("float", None, "Prandtl number, Pe = Re*Pr (boussinesq)",
+                         lower=0, lower_open=True),
+    "parameters.BPe": Key("float", None, "B*Pe, stratification of the low-Peclet model",
+                          lower=0),
+    "forcing.kf": Key("float", 1.0, "forcing wavenumber; kf*Ly/(2 pi) must be a whole number",
+                      lower=0, lower_open=True),
+    "forcing.amplitude": Key("amplitude", "laminar", "forcing amplitude F0"),
+    "box.Lx": Key("length", "4*pi", "streamwise box length", lower=0, lower_open=True),
+    "box.Ly": Key("length", "2*pi", "cross-stream box length", lower=0, lower_open=True),
+    "box.Lz": Key("length", "2*pi", "vertical box length", lower=0, lower_open=True),
+    "grid.Nx": Key("int", 64, "grid points in x (even)", lower=4),
+    "grid.Ny": Key("int", 32, "grid points in y (even)", lower=4),
+    "grid.Nz": Key("int", 32, "grid points in z (even)", lower=4),
+    "time.t_end": Key("float", None, "stop at this simulated time", lower=0, lower_open=True),
+    "time.max_steps": Key("int", None, "stop after this many steps", lower=1),
+    "time.wall_hours": Key("float", None, "stop after this wall-clock time (hours)",
+                           lower=0, lower_open=True),
+    "time.scheme": Key("choice", "cb3c", "IMEX Runge-Kutta scheme",
+                       choices=("cb3c", "ars343")),
+    "time.dt": Key("float", 1e-2, "first (or, if not adaptive, fixed) time step",
+                   lower=0, lower_open=True),
+    "time.adaptive": Key("bool", True, "adapt dt to the advective CFL number"),
+    "time.cfl": Key("float", 0.5, "advective CFL number", lower=0, lower_open=True, upper=2.0),
+    "time.dt_max": Key("float", 0.1, "ceiling on the adaptive time step",
+                       lower=0, lower_open=True),
+    "time.dt_min": Key("float", 1e-7, "a step below this is a collapse: the run stops",
+                       lower=0, lower_open=True),
+    "initial.kind": Key("choice", "laminar_noise", "initial state", choices=INITIAL_KINDS),
+    "initial.amplitude": Key("float", 1e-3, "rms of the noise / amplitude of a mode or file "
+                             "perturbation", lower=0),
+    "initial.seed": Key("int", 1, "random seed of the noise", lower=0),
+    "initial.noise_modes": Key("int", 4, "noise fills integer wave indices |n| <= this",
+                               lower=1),
+    "initial.path": Key("str", None, "perturbation file (kind: file)"),
+    "initial.mode.nx": Key("int", 1, "x wave index of the mode (kind: mode)"),
+    "initial.mode.ny": Key("int", 0, "y wave index of the mode"),
+    "initial.mode.nz": Key("int", 0, "z wave index of the mode"),
+    "initial.mode.component": Key("choice", "vortical", "which amplitude carries the mode",
+                                  choices=MODE_COMPONENTS),
+    "output.directory": Key("str", None, "run folder (default runs/<name>)"),
+    "output.diagnostics_every": Key("int", 10, "steps between time-series records", lower=1),
+    "output.progress_every": Key("int", 100, "steps between progress lines", lower=1),
+    "output.overwrite": Key("bool", False, "allow replacing an existing run folder's results"),
+    "compute.threads": Key("int", None, "FFTW threads per rank (default: OMP_NUM_THREADS or 1)",
+                           lower=1),
+    "compute.fftw_effort": Key("choice", "measure", "FFTW planning effort",
+                               choices=FFTW_EFFORTS),
+    "compute.wisdom": Key("str", "~/.cache/shearmix/fftw-wisdom",
+                          "FFTW wisdom cache file ('' disables it)"),
+}
+
+SECTIONS = sorted({k.split(".")[0] for k in SCHEMA if "." in k})
+
+
+# ---------------------------------------------------------------- lengths
+_OPS: dict[type, Callable] = {ast.Add: operator.add, ast.Sub: operator.sub,
+                              ast.Mult: operator.mul, ast.Div: operator.truediv,
+                              ast.Pow: operator.pow}
+
+
+def parse_length(text: Any) -> float:
+    """Evaluate a length: a number, or arithmetic on numbers and ``pi`` ('4*pi', '4pi')."""
+    if isinstance(text, bool):
+        raise ValueError("not a length")
+    if isinstance(text, (int, float)):
+        return float(text)
+    if not isinstance(text, str):
+        raise ValueError("not a length")
+    src = text.strip().lower().replace("π", "pi")
+    # '4pi' and '4 pi' are how people write it by hand
+    import re
+    src = re.sub(r"(\d)\s*(pi)", r"\1*\2", src)
+
+    def ev(node):
+        if isinstance(node, ast.Expression):
+            return ev(node.body)
+        if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)):
+            return float(node.value)
+        if isinstance(node, ast.Name) and node.id == "pi":
+            return math.pi
+        if isinstance(node, ast.BinOp) and type(node.op) in _OPS:
+            return _OPS[type(node.op)](ev(node.left), ev(node.right))
+        if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+            v = ev(node.operand)
+            return -v if isinstance(node.op, ast.USub) else v
+        raise ValueError("not a length")
+
+    try:
+        return float(ev(ast.parse(src, mode="eval")))
+    except (SyntaxError, ZeroDivisionError, TypeError, OverflowError) as exc:
+        raise ValueError("not a length") from exc
+
+
+# ---------------------------------------------------------------- the case
+@dataclass
+class Case:
+    """A validated case: the nested mapping with defaults filled, plus derived numbers.
+
+    Parameters follow DESIGN.md section 2. ``F0`` defaults to ``kf^2/Re``
+    (laminar amplitude 1); the laminar amplitude is ``U_L = F0 Re / kf^2``.
+    """
+
+    raw: dict
+    source: str = "<case>"
+    warnings: list = field(default_factory=list)
+
+    def get(self, dotted: str):
+        node = self.raw
+        for part in dotted.split("."):
+            node = node[part]
+        return node
+
+    # physics
+    @property
+    def name(self) -> str:
+        return self.raw["name"]
+
+    @property
+    def model(self) -> str:
+        return self.raw["model"]
+
+    @property
+    def Re(self) -> float:
+        return float(self.get("parameters.Re"))
+
+    @property
+    def Pe(self) -> float | None:
+        p = self.raw["parameters"]
+        if p.get("Pe") is not None:
+            return float(p["Pe"])
+        if p.get("Pr") is not None:
+            return float(p["Pr"]) * self.Re
+        return None
+
+    @property
+    def Pr(self) -> float | None:
+        pe = self.Pe
+        return None if pe is None else pe / self.Re
+
+    @property
+    def B(self) -> float | None:
+        if self.model == "boussinesq":
+            return float(self.get("parameters.B"))
+        return None
+
+    @property
+    def BPe(self) -> float:
+        if self.model == "lowpe":
+            return float(self.get("parameters.BPe"))
+        return self.B * self.Pe
+
+    @property
+    def kf(self) -> float:
+        return float(self.get("forcing.kf"))
+
+    @property
+    def F0(self) -> float:
+        amp = self.get("forcing.amplitude")
+        if amp == "laminar":
+            return self.kf ** 2 / self.Re
+        if amp == "unit":
+            return 1.0
+        return float(amp)
+
+    @property
+    def U_L(self) -> float:
+        """Laminar amplitude: the steady state is ``U_L sin(kf y) e_x``."""
+        return self.F0 * self.Re / self.kf ** 2
+
+    @property
+    def convention(self) -> str:
+        amp = self.get("forcing.amplitude")
+        if amp == "laminar":
+            return "unit-laminar (F0 = kf^2/Re, laminar amplitude 1)"
+        if amp == "unit":
+            return f"unit-forcing (F0 = 1, laminar amplitude Re/kf^2 = {self.U_L:g})"
+        return f"custom (F0 = {self.F0:g}, laminar amplitude {self.U_L:g})"
+
+    # geometry
+    @property
+    def lengths(self) -> tuple[float, float, float]:
+        b = self.raw["box"]
+        return (parse_length(b["Lx"]), parse_length(b["Ly"]), parse_length(b["Lz"]))
+
+    Lx = property(lambda self: self.lengths[0])
+    Ly = property(lambda self: self.lengths[1])
+    Lz = property(lambda self: self.lengths[2])
+
+    @property
+    def shape(self) -> tuple[int, int, int]:
+        g = self.raw["grid"]
+        return (int(g["Nx"]), int(g["Ny"]), int(g["Nz"]))
+
+    Nx = property(lambda self: self.shape[0])
+    Ny = property(lambda self: self.shape[1])
+    Nz = property(lambda self: self.shape[2])
+
+    @property
+    def output_directory(self) -> str:
+        d = self.get("output.directory")
+        return d if d else os.path.join("runs", self.name)
+
+    def to_yaml(self) -> str:
+        """The full case (defaults included) as YAML text, for every file written."""
+        return yaml.safe_dump(self.raw, sort_keys=False, default_flow_style=False)
+
+    def with_overrides(self, assignments: list[str] | dict) -> "Case":
+        """A new validated case with ``key=value`` assignments applied."""
+        raw = copy.deepcopy(self.raw)
+        _apply_overrides(raw, assignments, self.source)
+        return validate(raw, self.source)
+
+
+# ---------------------------------------------------------------- loading
+def load_case(path: str, overrides: list[str] | dict | None = None) -> Case:
+    """Read, override and validate a case file; raise :class:`CaseError` on any problem."""
+    try:
+        with open(path, encoding="utf-8") as fh:
+            text = fh.read()
+    except OSError as exc:
+        raise CaseError(f"{path}: cannot read case file ({exc.strerror})") from None
+    return case_from_text(text, path, overrides)
+
+
+def case_from_text(text: str, source: str = "<case>",
+                   overrides: list[str] | dict | None = None) -> Case:
+    """Parse YAML text into a validated :class:`Case`."""
+    try:
+        data = yaml.safe_load(text)
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+        problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
+        raise CaseError(f"{source}: not valid YAML{where}: {problem}") from None
+    if data is None:
+        data = {}
+    if not isinstance(data, dict):
+        raise CaseError(f"{source}: a case file must be a mapping of keys, "
+                        f"got {type(data).__name__}")
+    if overrides:
+        _apply_overrides(data, overrides, source)
+    return validate(data, source)
+
+
+def case_from_dict(data: dict, source: str = "<dict>") -> Case:
+    """Validate a nested mapping (as a case file would hold) into a :class:`Case`."""
+    return validate(copy.deepcopy(data), source)
+
+
+def _apply_overrides(data: dict, assignments, source: str) -> None:
+    items = assignments.items() if isinstance(assignments, dict) else None
+    if items is None:
+        parsed = []
+        for a in assignments:
+            if "=" not in a:
+                raise CaseError(f"--set {a!r}: expected key=value, e.g. parameters.Re=200")
+            key, value = a.split("=", 1)
+            try:
+                parsed.append((key.strip(), yaml.safe_load(value)))
+            except yaml.YAMLError:
+                parsed.append((key.strip(), value))
+        items = parsed
+    for key, value in items:
+        if key not in SCHEMA:
+            raise CaseError(f"--set {key}: unknown key{_suggest(key)}")
+        node = data
+        parts = key.split(".")
+        for part in parts[:-1]:
+            if not isinstance(node.get(part), dict):
+                node[part] = {}
+            node = node[part]
+        node[parts[-1]] = value
+
+
+def _suggest(key: str) -> str:
+    near = difflib.get_close_matches(key, list(SCHEMA), n=1, cutoff=0.5)
+    if not near:
+        leaf = key.split(".")[-1]
+        by_leaf = [k for k in SCHEMA if k.split(".")[-1].lower() == leaf.lower()]
+        near = by_leaf[:1]
+    return f" (did you mean {near[0]}?)" if near else ""
+
+
+def _flatten(data: dict, prefix: str, out: dict, source: str) -> None:
+    for k, v in data.items():
+        if not isinstance(k, str):
+            raise CaseError(f"{source}: key {k!r} is not a name")
+        dotted = f"{prefix}{k}"
+        if isinstance(v, dict) and dotted not in SCHEMA:
+            if not any(s.startswith(dotted + ".") for s in SCHEMA):
+                raise CaseError(f"{source}: unknown key {dotted}{_suggest(dotted)}")
+            _flatten(v, dotted + ".", out, source)
+        else:
+            if dotted not in SCHEMA:
+                raise CaseError(f"{source}: unknown key {dotted}{_suggest(dotted)}")
+            out[dotted] = v
+
+
+def _check_value(key: str, spec: Key, value: Any, source: str):
+    bad = CaseError(f"{source}: {key}: must be {spec.allowed()}, got {value!r}")
+    if value is None:
+        return None
+    kind = spec.kind
+    if kind == "bool":
+        if not isinstance(value, bool):
+            raise bad
+        return value
+    if kind == "str":
+        if not isinstance(value, str):
+            raise bad
+        return value
+    if kind == "choice":
+        if value not in spec.choices:
+            near = difflib.get_close_matches(str(value), spec.choices, n=1)
+            hint = f" (did you mean {near[0]}?)" if near else ""
+            raise CaseError(f"{source}: {key}: must be {spec.allowed()}, got {value!r}{hint}")
+        return value
+    if kind == "amplitude":
+        if value in ("laminar", "unit"):
+            return value
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or value < 0 \
+                or not math.isfinite(value):
+            raise bad
+        return float(value)
+    if kind == "int":
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise bad
+        number = value
+    elif kind == "float":
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise bad
+        value = float(value)
+        number = value
+    elif kind == "length":
+        try:
+            number = parse_length(value)
+        except ValueError:
+            raise bad from None
+    else:  # pragma: no cover - schema error
+        raise AssertionError(kind)
+    if not math.isfinite(number):
+        raise bad
+    if spec.lower is not None and (number < spec.lower or (spec.lower_open and number == spec.lower)):
+        raise bad
+    if spec.upper is not None and number > spec.upper:
+        raise bad
+    return value
+
+
+def validate(data: dict, source: str = "<case>") -> Case:
+    """Check every key, fill defaults and check the model's parameters."""
+    flat: dict[str, Any] = {}
+    _flatten(data, "", flat, source)
+    values = {}
+    for key, spec in SCHEMA.items():
+        v = _check_value(key, spec, flat.get(key), source)
+        values[key] = spec.default if v is None else v
+    if values["model"] is None:
+        raise CaseError(f"{source}: model: missing; must be one of {', '.join(MODELS)}")
+    if values["parameters.Re"] is None:
+        raise CaseError(f"{source}: parameters.Re: missing; must be a number > 0")
+
+    model = values["model"]
+    p = {k.split(".")[1]: values[k] for k in SCHEMA if k.startswith("parameters.")}
+    if p["Pe"] is not None and p["Pr"] is not None:
+        raise CaseError(f"{source}: parameters.Pe and parameters.Pr both given; "
+                        "give one (Pe = Re*Pr)")
+    if model == "boussinesq":
+        if p["B"] is None:
+            raise CaseError(f"{source}: parameters.B: missing; the boussinesq model needs "
+                            "Re, B and Pe (or Pr)")
+        if p["Pe"] is None and p["Pr"] is None:
+            raise CaseError(f"{source}: parameters.Pe: missing; the boussinesq model needs "
+                            "Pe or Pr")
+        if p["BPe"] is not None:
+            raise CaseError(f"{source}: parameters.BPe: belongs to model lowpe; the "
+                            "boussinesq model takes B and Pe (or Pr)")
+    else:
+        if p["BPe"] is None:
+            raise CaseError(f"{source}: parameters.BPe: missing; the lowpe model needs "
+                            "Re and BPe")
+        if p["B"] is not None:
+            raise CaseError(f"{source}: parameters.B: belongs to model boussinesq; the "
+                            "lowpe model takes BPe (and optionally Pe or Pr)")
+
+    for axis in ("Nx", "Ny", "Nz"):
+        if values[f"grid.{axis}"] % 2:
+            raise CaseError(f"{source}: grid.{axis}: must be even, got {values[f'grid.{axis}']}")
+    if all(values[k] is None for k in ("time.t_end", "time.max_steps", "time.wall_hours")):
+        raise CaseError(f"{source}: time: no stop condition; set time.t_end, "
+                        "time.max_steps or time.wall_hours")
+    if values["time.dt_min"] >= values["time.dt_max"]:
+        raise CaseError(f"{source}: time.dt_min: must be below time.dt_max "
+                        f"({values['time.dt_max']:g}), got {values['time.dt_min']:g}")
+    if values["initial.kind"] == "file" and not values["initial.path"]:
+        raise CaseError(f"{source}: initial.path: missing; initial.kind 'file' needs "
+                        "the perturbation file's path")
+
+    raw: dict = {}
+    for key, value in values.items():
+        node = raw
+        parts = key.split(".")
+        for part in parts[:-1]:
+            node = node.setdefault(part, {})
+        node[parts[-1]] = value
+    case = Case(raw=raw, source=source)
+
+    lx, ly, lz = case.lengths
+    turns = case.kf * ly / (2 * math.pi)
+    if abs(turns - round(turns)) > 1e-9 or round(turns) < 1:
+        raise CaseError(f"{source}: forcing.kf: kf*Ly/(2 pi) must be a whole number >= 1 "
+                        f"so the forcing is periodic, got {turns:.6g}")
+    if lx <= 2 * math.pi / case.kf * (1 + 1e-12):
+        case.warnings.append(
+            f"box.Lx = {lx:.6g} <= 2 pi/kf = {2 * math.pi / case.kf:.6g}: the box holds no "
+            "streamwise wavenumber below kf, so the laminar flow cannot go unstable in it "
+            "(classical Kolmogorov-flow result); 4 pi/kf is the usual choice")
+    if values["initial.kind"] == "mode":
+        for axis, n in zip("xyz", case.shape):
+            idx = values[f"initial.mode.n{axis}"]
+            if abs(idx) > (n - 1) // 3 or (axis == "z" and idx < 0):
+                raise CaseError(f"{source}: initial.mode.n{axis}: must lie within the dealiased "
+                                f"band 0..{(n - 1) // 3} (|n| for x, y), got {idx}")
+    if int(round(turns)) > (case.Ny - 1) // 3:
+        raise CaseError(f"{source}: grid.Ny: the forcing mode ky = kf needs Ny > "
+                        f"{3 * int(round(turns))} after 2/3 dealiasing, got {case.Ny}")
+    return case
+
+
+def key_table() -> list[tuple[str, str, str, str]]:
+    """(key, default, allowed, meaning) rows for documentation and ``check``."""
+    rows = []
+    for key, spec in SCHEMA.items():
+        default = "-" if spec.default is None else str(spec.default)
+        rows.append((key, default, spec.allowed(), spec.doc))
+    return rows

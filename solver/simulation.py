@@ -1,0 +1,308 @@
+"""A simulation: case -> grid, transforms, model, stepper and state; the time loop.
+
+``Simulation(case)`` builds everything (collective under MPI). ``advance(dt)``
+takes one step; ``run()`` steps until a stop condition, writing the time
+series and printing progress on rank 0.
+
+Exit codes of ``run`` (and of ``shearmix run``): 0 finished, 2 bad input,
+3 blow-up (NaN or time-step collapse), 4 stopped early on the wall-clock
+budget (restart from the last checkpoint).
+"""
+from __future__ import annotations
+
+import math
+import os
+import sys
+import time
+
+import numpy as np
+import pyfftw
+
+from . import diagnostics as diag
+from .basis import CrayaHerring
+from .case import Case
+from .grid import Grid
+from .imex import TABLEAUX, make_stepper
+from .initial import apply_initial
+from .models import Model, model_for
+from .parallel import world
+from .series import SERIES_FILE, TimeSeriesWriter
+from .tendency import PseudoSpectralTendency
+from .transforms import SlabTransform, load_wisdom, save_wisdom
+
+EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
+
+
+class BlowUp(RuntimeError):
+    """The run diverged: the message says when, which quantity and what to change."""
+
+
+def default_threads(case: Case) -> int:
+    t = case.get("compute.threads")
+    if t:
+        return int(t)
+    try:
+        return max(1, int(os.environ.get("OMP_NUM_THREADS", "1")))
+    except ValueError:
+        return 1
+
+
+class Simulation:
+    """State and machinery of one run.
+
+    Parameters
+    ----------
+    case : validated :class:`solver.case.Case`
+    comm : communicator (default: MPI world, or serial)
+    model : override the case's model (tests build reduced models this way)
+    initial : apply the case's initial state (default True)
+    """
+
+    def __init__(self, case: Case, comm=None, model: Model | None = None, initial: bool = True):
+        self.case = case
+        self.comm = comm if comm is not None else world()
+        self.grid = Grid(case.shape, case.lengths, self.comm.rank, self.comm.size)
+        wisdom = case.get("compute.wisdom")
+        load_wisdom(wisdom, self.comm)
+        self.fft = SlabTransform(self.grid, self.comm, threads=default_threads(case),
+                                 effort=case.get("compute.fftw_effort"))
+        save_wisdom(wisdom, self.comm)
+        self.basis = CrayaHerring(self.grid)
+        self.model = model if model is not None else model_for(case)
+        self.fields = self.model.fields
+        self.operator = self.model.operator(self.grid, self.basis)
+        self.tendency = PseudoSpectralTendency(self.grid, self.basis, self.fft, self.fields,
+                                               self.model.advection, self.model.forcing)
+        self.state = pyfftw.empty_aligned((len(self.fields),) + self.grid.spectral_shape,
+                                          dtype=np.complex128)
+        self.state[...] = 0
+        self.tableau = TABLEAUX[case.get("time.scheme")]
+        self._n0 = np.empty_like(self.state)
+        self.stepper = make_stepper(self.tableau, self.tendency, self.operator, self.state)
+        self.t = 0.0
+        self.step_count = 0
+        self.dt = float(case.get("time.dt"))
+        self.adaptive = bool(case.get("time.adaptive"))
+        if initial:
+            apply_initial(self)
+
+    # ------------------------------------------------------------ state in and out
+    def set_physical(self, u, v, w, T=None) -> None:
+        """Set the state from local physical slabs (velocity projected to divergence free)."""
+        g, fft = self.grid, self.fft
+        comps = []
+        for f in (u, v, w):
+            phys = fft.empty_physical()
+            phys[...] = f
+            spec = fft.empty_spectral()
+            fft.forward(phys, spec)
+            spec *= self.tendency.mask
+            comps.append(spec)
+        self.basis.project(*comps, self.state[0], self.state[1])
+        self.state[0] *= self.basis.nonzero
+        self.state[1] *= self.basis.nonzero
+        if "T" in self.fields:
+            phys = fft.empty_physical()
+            phys[...] = 0 if T is None else T
+            fft.forward(phys, self.state[2])
+            self.state[2] *= self.tendency.mask
+            self.state[2] *= self.basis.nonzero
+
+    def physical(self):
+        """Local physical slabs ``(u, v, w, T or None)`` of the current state (copies)."""
+        self.tendency.to_physical(self.state)
+        u, v, w = (f.copy() for f in self.tendency.velocity)
+        T = self.tendency.temperature.copy() if "T" in self.fields else None
+        return u, v, w, T
+
+    def add_mode(self, nx: int, ny: int, nz: int, component: str, amplitude: float) -> None:
+        """Add ``amplitude * e cos(k.x)`` with ``e`` the frame vector of ``component`` at k."""
+        g = self.grid
+        x, y, z = g.physical_coordinates()
+        k = np.array([2 * np.pi / L * n for L, n in zip(g.lengths, (nx, ny, nz))])
+        phase = np.cos(k[0] * x + k[1] * y + k[2] * z) * np.ones(g.physical_shape)
+        kh = math.hypot(k[0], k[1])
+        kk = math.sqrt(kh ** 2 + k[2] ** 2)
+        u0, v0, w0, T0 = self.physical()
+        if component == "T":
+            if T0 is None:
+                raise ValueError("component T needs the boussinesq model")
+            T0 = T0 + amplitude * phase
+        else:
+            if kh == 0:
+                e = (1.0, 0.0, 0.0) if component == "vortical" else (0.0, 1.0, 0.0)
+            elif component == "vortical":
+                e = (k[1] / kh, -k[0] / kh, 0.0)
+            else:
+                e = (k[0] * k[2] / (kh * kk), k[1] * k[2] / (kh * kk), -kh / kk)
+            u0 = u0 + amplitude * e[0] * phase
+            v0 = v0 + amplitude * e[1] * phase
+            w0 = w0 + amplitude * e[2] * phase
+        self.set_physical(u0, v0, w0, T0)
+
+    # ------------------------------------------------------------ stepping
+    def _stage_zero(self, want_speed=True):
+        self.tendency.want_speed = want_speed
+        self.tendency(self.state, self.t, self._n0)
+        self.tendency.want_speed = False
+        return self._n0
+
+    def cfl_dt(self) -> float:
+        """Largest step allowed by the advective CFL number and the ceiling."""
+        rate = self.tendency.cfl_rate
+        dt_max = float(self.case.get("time.dt_max"))
+        cfl = float(self.case.get("time.cfl"))
+        return dt_max if rate <= 0 else min(dt_max, cfl / rate)
+
+    def advance(self, dt: float | None = None, t_stop: float | None = None) -> float:
+        """One step: ``dt`` if given, else the adaptive (or fixed) step; returns the step taken."""
+        n0 = self._stage_zero(want_speed=True)
+        if not math.isfinite(self.tendency.cfl_rate):
+            raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
+        if dt is None:
+            if self.adaptive:
+                dt = min(self.cfl_dt(), 2.0 * self.dt)
+            else:
+                dt = self.dt
+        if t_stop is not None and self.t + dt > t_stop - 1e-12 * max(1.0, abs(t_stop)):
+            dt = t_stop - self.t
+        elif self.adaptive and dt < float(self.case.get("time.dt_min")):
+            raise BlowUp(self._blowup_message(
+                f"the CFL time step fell to {dt:.3g}, below time.dt_min = "
+                f"{self.case.get('time.dt_min'):g} (max |u| = {self.tendency.max_speed:.3g})"))
+        self.stepper.step(self.state, self.t, dt, n0)
+        self.t += dt
+        self.step_count += 1
+        if dt > 0 and (t_stop is None or abs(self.t - t_stop) > 1e-12 * max(1.0, abs(t_stop))):
+            self.dt = dt
+        return dt
+
+    def advance_to(self, t_end: float, dt: float | None = None) -> None:
+        """Step until ``t_end`` exactly (the last step shortened)."""
+        while self.t < t_end - 1e-12 * max(1.0, abs(t_end)):
+            self.advance(dt, t_stop=t_end)
+
+    def _blowup_message(self, what: str) -> str:
+        nx, ny, nz = self.grid.shape
+        return (f"blow-up at step {self.step_count}, t = {self.t:.6g}: {what}; refine the grid "
+                f"(grid.Nx/Ny/Nz, now {nx} x {ny} x {nz}) or lower time.cfl "
+                f"(now {self.case.get('time.cfl'):g})")
+
+    def diagnostics(self) -> dict:
+        """Instantaneous diagnostics (collective); refreshes max |u| first."""
+        self._stage_zero(want_speed=True)
+        return diag.compute(self)
+
+    # ------------------------------------------------------------ the run loop
+    def run(self, output: str | None = None, append: bool = False, log=None) -> int:
+        """Step to a stop condition, writing the time series. Returns an exit code."""
+        case, comm = self.case, self.comm
+        out_dir = output or case.output_directory
+        log = log or (lambda msg: print(msg, flush=True))
+        say = log if comm.rank == 0 else (lambda msg: None)
+        t_end = case.get("time.t_end")
+        max_steps = case.get("time.max_steps")
+        wall = case.get("time.wall_hours")
+        every = int(case.get("output.diagnostics_every"))
+        progress = int(case.get("output.progress_every"))
+        writer = None
+        if comm.rank == 0:
+            os.makedirs(out_dir, exist_ok=True)
+            with open(os.path.join(out_dir, "case.yaml"), "w", encoding="utf-8") as fh:
+                fh.write(f"# written by shearmix {__import__('solver').__version__}\n")
+                fh.write(case.to_yaml())
+            writer = TimeSeriesWriter(os.path.join(out_dir, SERIES_FILE), case,
+                                      diag.SERIES_NAMES, append=append)
+        budget = diag.BudgetCheck()
+        start_wall = time.monotonic()
+        start_step, start_t = self.step_count, self.t
+        last_report = (start_wall, self.step_count)
+        code = EXIT_FINISHED
+        say(f"shearmix: {case.name}: model {case.model}, grid {self.grid.shape}, "
+            f"{comm.size} rank(s), convention {case.convention}")
+
+        def record():
+            d = diag.compute(self)
+            d["budget_residual"] = budget(d)
+            if writer is not None:
+                writer.append(d)
+            return d
+
+        try:
+            while True:
+                n0 = self._stage_zero(want_speed=True)
+                if not math.isfinite(self.tendency.cfl_rate):
+                    raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
+                if self.step_count % every == 0:
+                    d = record()
+                    if not math.isfinite(d["K"]):
+                        raise BlowUp(self._blowup_message("the kinetic energy is not finite"))
+                if (self.step_count - start_step) % progress == 0:
+                    now = time.monotonic()
+                    rate = (self.step_count - last_report[1]) / max(now - last_report[0], 1e-9)
+                    last_report = (now, self.step_count)
+                    d = d if self.step_count % every == 0 else diag.compute(self)
+                    say(self._progress_line(d, rate, start_wall, start_t, start_step))
+                done = (t_end is not None and self.t >= t_end - 1e-12 * max(1.0, t_end)) or \
+                       (max_steps is not None and self.step_count - start_step >= max_steps)
+                if done:
+                    break
+                if wall is not None and comm.max(time.monotonic() - start_wall) >= wall * 3600:
+                    say(f"shearmix: wall-clock budget of {wall:g} h reached at step "
+                        f"{self.step_count}, t = {self.t:.6g}")
+                    code = EXIT_STOPPED_EARLY
+                    break
+                self._step_with(n0, t_end)
+            if self.step_count % every != 0:
+                record()
+        except BlowUp as exc:
+            say(f"shearmix: {exc}")
+            code = EXIT_BLOWUP
+            if writer is not None:
+                writer.close()
+            return code
+        if writer is not None:
+            writer.close()
+        elapsed = time.monotonic() - start_wall
+        say(f"shearmix: {'finished' if code == 0 else 'stopped'} at step {self.step_count}, "
+            f"t = {self.t:.6g}, {elapsed:.1f} s wall; time series in "
+            f"{os.path.join(out_dir, SERIES_FILE)}")
+        return code
+
+    def _step_with(self, n0, t_end):
+        if self.adaptive:
+            dt = min(self.cfl_dt(), 2.0 * self.dt)
+            if dt < float(self.case.get("time.dt_min")):
+                raise BlowUp(self._blowup_message(
+                    f"the CFL time step fell to {dt:.3g}, below time.dt_min = "
+                    f"{self.case.get('time.dt_min'):g} (max |u| = {self.tendency.max_speed:.3g})"))
+        else:
+            dt = self.dt
+        if t_end is not None and self.t + dt > t_end:
+            dt = t_end - self.t
+        else:
+            self.dt = dt
+        self.stepper.step(self.state, self.t, dt, n0)
+        self.t += dt
+        self.step_count += 1
+
+    def _progress_line(self, d, rate, start_wall, start_t, start_step) -> str:
+        case = self.case
+        elapsed = time.monotonic() - start_wall
+        left = []
+        if case.get("time.t_end") is not None and self.t > start_t and elapsed > 0:
+            left.append((case.get("time.t_end") - self.t) * elapsed / (self.t - start_t))
+        if case.get("time.max_steps") is not None and self.step_count > start_step:
+            left.append((case.get("time.max_steps") - (self.step_count - start_step))
+                        * elapsed / (self.step_count - start_step))
+        if case.get("time.wall_hours") is not None:
+            left.append(case.get("time.wall_hours") * 3600 - elapsed)
+        remaining = _hms(min(left)) if left else "--:--:--"
+        eta = d["eta"]
+        return (f"step {self.step_count:7d}  t {self.t:10.4f}  dt {self.dt:9.3e}  "
+                f"K {d['K']:10.4e}  eta {eta:6.3f}  {rate:7.1f} steps/s  left {remaining}")
+
+
+def _hms(seconds: float) -> str:
+    seconds = max(0, int(seconds))
+    return f"{seconds // 3600:02d}:{seconds % 3600 // 60:02d}:{seconds % 60:02d}"

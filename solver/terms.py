@@ -1,0 +1,88 @@
+"""The terms of the equations, each one idea; a model is a set of them.
+
+State amplitudes per wavenumber (see :mod:`solver.basis`): ``a`` (vortical),
+``p`` (poloidal, carries ``w = -alpha p``) and, in the full model, ``T``.
+Linear terms are treated implicitly; each adds its coefficients to the
+per-wavenumber linear operator ``L`` (``d(field)/dt = L[field, source] * source``).
+Explicit terms (advection, forcing) add to the explicit tendency.
+
+Linear coefficients follow DESIGN.md section 2 in the Craya-Herring frame,
+with ``alpha = kh/|k|``:
+
+* viscosity:            ``L[a,a] = L[p,p] = -|k|^2/Re``
+* thermal diffusion:    ``L[T,T] = -|k|^2/Pe``
+* buoyancy B T e_z:     ``L[p,T] = -B alpha``          (``e2 . e_z = -alpha``)
+* background gradient (``-w`` in the T equation): ``L[T,p] = +alpha``
+* quasi-static buoyancy ``BPe lap^{-1}(w) e_z``: ``L[p,p] = -BPe alpha^2/|k|^2``
+  (``= -BPe kh^2/|k|^4``, the low-Peclet damping)
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Viscosity:
+    """Momentum diffusion ``(1/Re) lap u``."""
+
+    Re: float
+
+    def linear(self, g):
+        d = -g.k2 / self.Re
+        return {("a", "a"): d, ("p", "p"): d}
+
+
+@dataclass(frozen=True)
+class ThermalDiffusion:
+    """Temperature diffusion ``(1/Pe) lap T``."""
+
+    Pe: float
+
+    def linear(self, g):
+        return {("T", "T"): -g.k2 / self.Pe}
+
+
+@dataclass(frozen=True)
+class Buoyancy:
+    """Buoyancy force ``B T e_z`` in the momentum equation (projected)."""
+
+    B: float
+
+    def linear(self, g):
+        return {("p", "T"): -self.B * g.alpha}
+
+
+@dataclass(frozen=True)
+class BackgroundStratification:
+    """Advection of the unit background gradient: ``-w`` in the temperature equation."""
+
+    def linear(self, g):
+        return {("T", "p"): g.alpha}
+
+
+@dataclass(frozen=True)
+class QuasiStaticBuoyancy:
+    """Low-Peclet buoyancy ``BPe lap^{-1}(w) e_z`` (zero on k = 0), projected."""
+
+    BPe: float
+
+    def linear(self, g):
+        k2 = np.where(g.k2 == 0, 1.0, g.k2)
+        return {("p", "p"): -self.BPe * g.alpha ** 2 / k2}
+
+
+@dataclass(frozen=True)
+class Advection:
+    """``-(u.grad)u`` and, when the model has T, ``-u.grad T`` (pseudo-spectral)."""
+
+    with_temperature: bool
+
+
+@dataclass(frozen=True)
+class ShearForcing:
+    """``F = F0 sin(kf y) e_x``; on the modes ``(0, +-kf, 0)`` it is ``F0/(2i) e_x``."""
+
+    F0: float
+    kf: float

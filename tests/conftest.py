@@ -1,0 +1,41 @@
+"""Shared helpers: small cases built in code, without files."""
+import copy
+import os
+import sys
+
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+if ROOT not in sys.path:
+    sys.path.insert(0, ROOT)
+
+# plans made quickly and no wisdom file touched by the tests
+BASE = {
+    "model": "lowpe",
+    "parameters": {"Re": 50.0, "BPe": 1.0},
+    "grid": {"Nx": 16, "Ny": 16, "Nz": 16},
+    "time": {"t_end": 1.0},
+    "compute": {"fftw_effort": "estimate", "wisdom": ""},
+}
+
+
+def merge(base, extra):
+    out = copy.deepcopy(base)
+    for k, v in extra.items():
+        if isinstance(v, dict) and isinstance(out.get(k), dict):
+            out[k] = merge(out[k], v)
+        else:
+            out[k] = v
+    return out
+
+
+@pytest.fixture
+def make_case():
+    from solver.case import case_from_dict
+
+    def _make(**sections):
+        base = copy.deepcopy(BASE)
+        if "parameters" in sections:  # a model's parameters replace the default set
+            base["parameters"] = {}
+        return case_from_dict(merge(base, sections))
+    return _make

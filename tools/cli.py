@@ -1,0 +1,153 @@
+"""``shearmix``: the one command-line door to the engine and the tools.
+
+    shearmix run CASE.yaml [--output DIR] [--set key=value ...]
+    shearmix check CASE.yaml [--set key=value ...] [--ranks P]
+    shearmix keys
+
+Under MPI: ``mpirun -n P shearmix run CASE.yaml``. Exit codes: 0 done, 1 an
+unexpected failure, 2 bad input (nothing written), 3 blow-up, 4 stopped early
+on the wall-clock budget (restart it).
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import os
+import sys
+
+EXIT_BAD_INPUT = 2
+
+#: optional subcommand families: module with add_arguments(subparsers)
+_PLUGINS = ("tools.stability.cli", "tools.analysis_cli")
+
+
+def _fail(message: str, code: int = EXIT_BAD_INPUT) -> int:
+    print(f"shearmix: error: {message}", file=sys.stderr)
+    return code
+
+
+def _load(args):
+    from solver.case import CaseError, load_case
+    try:
+        return load_case(args.case, args.set or None), None
+    except CaseError as exc:
+        return None, str(exc)
+
+
+def cmd_check(args) -> int:
+    from solver.sizing import derived
+    case, err = _load(args)
+    if err:
+        return _fail(err)
+    info = derived(case, args.ranks)
+    print(f"case {case.name} ({args.case}): valid")
+    for key, value in info.items():
+        if key == "expected memory":
+            value = f"{value / 2 ** 20:.1f} MiB (estimate)"
+        elif key == "bytes per point":
+            value = f"{value:.0f}"
+        elif isinstance(value, tuple):
+            value = " x ".join(f"{v:.6g}" if isinstance(v, float) else str(v) for v in value)
+        elif isinstance(value, list):
+            value = ", ".join(map(str, value))
+        elif isinstance(value, float):
+            value = f"{value:.6g}"
+        elif value is None:
+            value = "-"
+        print(f"  {key:34s} {value}")
+    if args.ranks and args.ranks not in info["allowed rank counts"]:
+        print(f"  warning: {args.ranks} ranks not allowed for this grid")
+    for w in case.warnings:
+        print(f"  warning: {w}")
+    return 0
+
+
+def cmd_keys(args) -> int:
+    from solver.case import key_table
+    for key, default, allowed, doc in key_table():
+        print(f"{key:28s} {default:32s} {allowed}  -- {doc}")
+    return 0
+
+
+def cmd_run(args) -> int:
+    from solver.case import CaseError
+    from solver.grid import GridError, allowed_rank_counts
+    from solver.initial import InitialStateError
+    from solver.parallel import world
+    from solver.series import SERIES_FILE
+
+    comm = world()
+    rank0 = comm.rank == 0
+    case, err = _load(args)
+    if err:
+        return _fail(err) if rank0 else EXIT_BAD_INPUT
+    if comm.size not in allowed_rank_counts(case.shape):
+        msg = (f"{args.case}: grid {case.Nx} x {case.Ny} x {case.Nz} cannot run on "
+               f"{comm.size} ranks; allowed: {', '.join(map(str, allowed_rank_counts(case.shape)))}")
+        return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    out_dir = args.output or case.output_directory
+    series = os.path.join(out_dir, SERIES_FILE)
+    if os.path.exists(series) and not case.get("output.overwrite"):
+        msg = (f"{out_dir}: already holds a run ({SERIES_FILE}); choose another --output or set "
+               "output.overwrite=true to replace it")
+        return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    if case.get("initial.kind") == "file" and not os.path.exists(case.get("initial.path")):
+        msg = f"{case.get('initial.path')}: initial.path: no such perturbation file"
+        return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    if rank0:
+        for w in case.warnings:
+            print(f"shearmix: warning: {w}", file=sys.stderr)
+    from solver.simulation import Simulation
+    try:
+        sim = Simulation(case, comm)
+    except (InitialStateError, GridError, CaseError) as exc:
+        return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
+    return sim.run(output=out_dir)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from solver.version import __version__
+    parser = argparse.ArgumentParser(
+        prog="shearmix",
+        description="DNS of forced stratified shear flow (full Boussinesq and low-Peclet "
+                    "models) and the tools around it.")
+    parser.add_argument("--version", action="version", version=f"shearmix {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    p = sub.add_parser("run", help="run a case (under mpirun for several ranks)")
+    p.add_argument("case", help="case file (YAML)")
+    p.add_argument("--output", "-o", help="run folder (default: output.directory or runs/<name>)")
+    p.add_argument("--set", action="append", metavar="KEY=VALUE",
+                   help="override a case key, e.g. --set parameters.Re=200 (repeatable)")
+    p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("check", help="validate a case and print its derived quantities")
+    p.add_argument("case")
+    p.add_argument("--set", action="append", metavar="KEY=VALUE")
+    p.add_argument("--ranks", type=int, help="rank count to size the run for")
+    p.set_defaults(func=cmd_check)
+
+    p = sub.add_parser("keys", help="list every case-file key with its default")
+    p.set_defaults(func=cmd_keys)
+
+    for name in _PLUGINS:
+        try:
+            module = importlib.import_module(name)
+        except ModuleNotFoundError as exc:
+            if exc.name != name:  # a broken plugin must fail loudly, not vanish
+                raise
+            continue
+        if hasattr(module, "add_arguments"):
+            module.add_arguments(sub)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    return int(args.func(args) or 0)
+
+
+if __name__ == "__main__":
+    sys.exit(main())
