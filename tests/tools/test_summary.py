@@ -221,3 +221,26 @@ def test_lz_turb_errors():
         lz_turb([1.0, 0.0], [0.0, 1.0])
     with pytest.raises(ValueError, match="must match"):
         lz_turb([1.0, 0.0], [0.0])
+
+
+# ------------------------------------------------------------- command line
+def test_command_line(tmp_path, run_dir, capsys):
+    from tools.analysis_cli import main
+
+    out_csv, out_json = tmp_path / "t.csv", tmp_path / "r.json"
+    assert main(["summary", str(run_dir), "--csv", str(out_csv), "--json", str(out_json)]) == 0
+    text = capsys.readouterr().out
+    assert f"run {run_dir.name}" in text and "regime" in text
+    assert json.loads(out_json.read_text())["run"] == run_dir.name
+    assert main(["summary", str(run_dir), "--start", "200"]) == 0
+    assert "[200" in capsys.readouterr().out
+    # A table of one run cannot be fitted (3 points needed): bad input, exit 2.
+    assert main(["fit", str(out_csv), "--x", "BPe", "--y", "Lz_turb"]) == 2
+    assert "at least 3 points" in capsys.readouterr().err
+    table = tmp_path / "three.csv"
+    table.write_text("BPe,w_rms\n1,1\n8,0.7071067811865476\n64,0.5\n")  # w = BPe^(-1/6) exactly
+    assert main(["fit", str(table), "--x", "BPe", "--y", "w_rms"]) == 0
+    text = capsys.readouterr().out
+    assert "p = -0.1667" in text and "expected p = -0.1667" in text
+    assert main(["summary", str(tmp_path / "nowhere")]) == 2
+    assert "timeseries.h5" in capsys.readouterr().err
