@@ -1,0 +1,72 @@
+"""Run under mpiexec by tests/solver/test_mpi.py (not collected by pytest).
+
+    mpi_probe.py fft OUT.npz            distributed FFT vs numpy.fft on the whole grid
+    mpi_probe.py steps MODEL N OUT.npz  N steps of a nonlinear case; gathered state
+"""
+import os
+import sys
+
+import numpy as np
+
+sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
+
+from solver.case import case_from_dict  # noqa: E402
+from solver.grid import Grid  # noqa: E402
+from solver.parallel import world  # noqa: E402
+from solver.simulation import Simulation  # noqa: E402
+from solver.transforms import SlabTransform  # noqa: E402
+
+
+def gather_spectral(comm, local):
+    """Global spectral array (..., Nx, Ny, Nzc) on rank 0, from ky-slabs."""
+    if comm.size == 1:
+        return local
+    parts = comm.comm.gather(local, root=0)
+    return np.concatenate(parts, axis=-2) if comm.rank == 0 else None
+
+
+def check_fft(out):
+    comm = world()
+    shape = (12, 8, 10)
+    grid = Grid(shape, (1.0, 2.0, 3.0), comm.rank, comm.size)
+    fft = SlabTransform(grid, comm, effort="estimate")
+    field = np.random.default_rng(7).standard_normal(shape)  # same on every rank
+    phys = fft.empty_physical()
+    phys[...] = field[grid.x_start:grid.x_start + grid.nx_local]
+    spec = fft.empty_spectral()
+    fft.forward(phys, spec)
+    full = gather_spectral(comm, spec.copy())
+    back = fft.empty_physical()
+    spec /= field.size
+    fft.inverse(spec, back)
+    err_back = comm.max(float(np.abs(back - phys).max()))
+    if comm.rank == 0:
+        ref = np.fft.rfftn(field)
+        np.savez(out, err_forward=np.abs(full - ref).max() / np.abs(ref).max(),
+                 err_inverse=err_back, size=comm.size)
+
+
+def run_steps(model, nsteps, out):
+    comm = world()
+    params = {"lowpe": {"Re": 80.0, "BPe": 3.0},
+              "boussinesq": {"Re": 80.0, "B": 3.0, "Pr": 0.7}}[model]
+    case = case_from_dict({
+        "model": model, "parameters": params,
+        "grid": {"Nx": 16, "Ny": 16, "Nz": 8},
+        "time": {"t_end": 10.0, "dt": 0.02, "cfl": 0.5},
+        "initial": {"kind": "laminar_noise", "amplitude": 0.2, "seed": 11},
+        "compute": {"fftw_effort": "estimate", "wisdom": ""}})
+    sim = Simulation(case, comm)
+    sim.add_mode(1, 1, 1, "poloidal", 0.2)
+    for _ in range(nsteps):
+        sim.advance()
+    full = gather_spectral(comm, sim.state.copy())
+    if comm.rank == 0:
+        np.savez(out, state=full, t=sim.t, size=comm.size)
+
+
+if __name__ == "__main__":
+    if sys.argv[1] == "fft":
+        check_fft(sys.argv[2])
+    else:
+        run_steps(sys.argv[2], int(sys.argv[3]), sys.argv[4])
