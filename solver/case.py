@@ -380,6 +380,13 @@ def _check_value(key: str, spec: Key, value: Any, source: str):
     if value is None:
         return None
     kind = spec.kind
+    if kind in ("float", "int", "amplitude") and isinstance(value, str):
+        # YAML 1.1 reads 1e6 (no dot) as a string; people write it anyway
+        try:
+            number = float(value)
+            value = int(number) if kind == "int" and number.is_integer() else number
+        except ValueError:
+            pass
     if kind == "bool":
         if not isinstance(value, bool):
             raise bad
