@@ -219,7 +219,10 @@ def summarize_run(path, options=None, **overrides):
         if not ok.all():
             raise ValueError(f"{fname}: steady-state quantity '{q}' has non-finite records")
         steady_in[q] = data[q]
-    steady = detect_steady_state(t, steady_in, start=opts.start)
+    try:
+        steady = detect_steady_state(t, steady_in, start=opts.start)
+    except ValueError as exc:
+        raise ValueError(f"{fname}: {exc}") from None
     if not steady.reliable:
         warnings.append("no reliable steady state: MSER truncation falls in the second half (run too short or drifting)")
     pars = _parameters(attrs)
@@ -252,7 +255,10 @@ def summarize_run(path, options=None, **overrides):
             continue  # quantity not defined for this run (e.g. Pe_turb without Pe)
         if not ok.all():
             warnings.append(f"{q}: {np.count_nonzero(~ok)} non-finite records in the window skipped")
-        avg = time_average(t[win][ok], x[ok], n_batches=opts.n_batches, name=q)
+        try:
+            avg = time_average(t[win][ok], x[ok], n_batches=opts.n_batches, name=q)
+        except ValueError as exc:
+            raise ValueError(f"{fname}: {exc}") from None
         row[q], row[f"{q}_err"], row[f"{q}_tau"] = avg.mean, avg.sigma, avg.tau
         if avg.tau > 0:
             n_corr.append(((avg.t_end - avg.t_start) / avg.tau, q))

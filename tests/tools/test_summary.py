@@ -244,3 +244,10 @@ def test_command_line(tmp_path, run_dir, capsys):
     assert "p = -0.1667" in text and "expected p = -0.1667" in text
     assert main(["summary", str(tmp_path / "nowhere")]) == 2
     assert "timeseries.h5" in capsys.readouterr().err
+
+
+def test_bad_start_names_file(run_dir):
+    with pytest.raises(ValueError, match=r"timeseries\.h5: start time 1000000.0 is outside"):
+        summarize_run(run_dir, start=1e6)
+    with pytest.raises(ValueError, match="unknown summary option 'begin'"):
+        summarize_run(run_dir, begin=3.0)
