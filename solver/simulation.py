@@ -26,7 +26,7 @@ from .imex import TABLEAUX, make_stepper
 from .initial import apply_initial
 from .models import Model, model_for
 from .parallel import world
-from .series import SERIES_FILE, TimeSeriesWriter
+from .outputs import TimeSeriesOutput
 from .tendency import PseudoSpectralTendency
 from .transforms import SlabTransform, load_wisdom, save_wisdom
 
@@ -194,8 +194,13 @@ class Simulation:
         return diag.compute(self)
 
     # ------------------------------------------------------------ the run loop
-    def run(self, output: str | None = None, append: bool = False, log=None) -> int:
-        """Step to a stop condition, writing the time series. Returns an exit code."""
+    def default_outputs(self) -> list:
+        """The outputs a case asks for (the time series, and more as the tool grows)."""
+        return [TimeSeriesOutput(int(self.case.get("output.diagnostics_every")))]
+
+    def run(self, output: str | None = None, append: bool = False, log=None,
+            outputs: list | None = None) -> int:
+        """Step to a stop condition, writing the outputs. Returns an exit code."""
         case, comm = self.case, self.comm
         out_dir = output or case.output_directory
         log = log or (lambda msg: print(msg, flush=True))
@@ -203,45 +208,39 @@ class Simulation:
         t_end = case.get("time.t_end")
         max_steps = case.get("time.max_steps")
         wall = case.get("time.wall_hours")
-        every = int(case.get("output.diagnostics_every"))
         progress = int(case.get("output.progress_every"))
-        writer = None
+        self.outputs = outputs if outputs is not None else self.default_outputs()
         if comm.rank == 0:
             os.makedirs(out_dir, exist_ok=True)
             with open(os.path.join(out_dir, "case.yaml"), "w", encoding="utf-8") as fh:
                 fh.write(f"# written by shearmix {__import__('solver').__version__}\n")
                 fh.write(case.to_yaml())
-            writer = TimeSeriesWriter(os.path.join(out_dir, SERIES_FILE), case,
-                                      diag.SERIES_NAMES, append=append)
-        budget = diag.BudgetCheck()
+        comm.barrier()
+        for out in self.outputs:
+            out.open(self, out_dir, append)
+        series = next((o for o in self.outputs if isinstance(o, TimeSeriesOutput)), None)
         start_wall = time.monotonic()
         start_step, start_t = self.step_count, self.t
         last_report = (start_wall, self.step_count)
-        code = EXIT_FINISHED
+        code, reason = EXIT_FINISHED, "finished"
         say(f"shearmix: {case.name}: model {case.model}, grid {self.grid.shape}, "
             f"{comm.size} rank(s), convention {case.convention}")
-
-        def record():
-            d = diag.compute(self)
-            d["budget_residual"] = budget(d)
-            if writer is not None:
-                writer.append(d)
-            return d
-
         try:
             while True:
                 n0 = self._stage_zero(want_speed=True)
                 if not math.isfinite(self.tendency.cfl_rate):
                     raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
-                if self.step_count % every == 0:
-                    d = record()
-                    if not math.isfinite(d["K"]):
-                        raise BlowUp(self._blowup_message("the kinetic energy is not finite"))
+                for out in self.outputs:
+                    if out.due(self):
+                        out.write(self)
+                fresh = series is not None and series.last_step == self.step_count
+                if fresh and not math.isfinite(series.last["K"]):
+                    raise BlowUp(self._blowup_message("the kinetic energy is not finite"))
                 if (self.step_count - start_step) % progress == 0:
                     now = time.monotonic()
                     rate = (self.step_count - last_report[1]) / max(now - last_report[0], 1e-9)
                     last_report = (now, self.step_count)
-                    d = d if self.step_count % every == 0 else diag.compute(self)
+                    d = series.last if fresh else diag.compute(self)
                     say(self._progress_line(d, rate, start_wall, start_t, start_step))
                 done = (t_end is not None and self.t >= t_end - 1e-12 * max(1.0, t_end)) or \
                        (max_steps is not None and self.step_count - start_step >= max_steps)
@@ -250,23 +249,19 @@ class Simulation:
                 if wall is not None and comm.max(time.monotonic() - start_wall) >= wall * 3600:
                     say(f"shearmix: wall-clock budget of {wall:g} h reached at step "
                         f"{self.step_count}, t = {self.t:.6g}")
-                    code = EXIT_STOPPED_EARLY
+                    code, reason = EXIT_STOPPED_EARLY, "stopped"
                     break
                 self._step_with(n0, t_end)
-            if self.step_count % every != 0:
-                record()
         except BlowUp as exc:
             say(f"shearmix: {exc}")
-            code = EXIT_BLOWUP
-            if writer is not None:
-                writer.close()
+            code, reason = EXIT_BLOWUP, "blowup"
+        for out in self.outputs:
+            out.close(self, reason)
+        if code == EXIT_BLOWUP:
             return code
-        if writer is not None:
-            writer.close()
         elapsed = time.monotonic() - start_wall
         say(f"shearmix: {'finished' if code == 0 else 'stopped'} at step {self.step_count}, "
-            f"t = {self.t:.6g}, {elapsed:.1f} s wall; time series in "
-            f"{os.path.join(out_dir, SERIES_FILE)}")
+            f"t = {self.t:.6g}, {elapsed:.1f} s wall; results in {out_dir}")
         return code
 
     def _step_with(self, n0, t_end):

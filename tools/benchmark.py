@@ -1,0 +1,156 @@
+"""Benchmark of the time step against its transform floor, and memory per grid point.
+
+    python -m tools.benchmark [--sizes 64 128] [--ranks 1 2] [--models lowpe boussinesq]
+                              [--steps 20] [--json FILE]
+
+Each (model, size, rank count) runs in its own ``mpiexec`` job so that peak
+resident memory is that run's alone. Inside the job: plans are made (with
+wisdom), two warm-up steps are taken, then ``--steps`` steps are timed one by
+one (median reported). The transform floor is the time of the forward and
+inverse transforms one step performs (counted while stepping), executed alone
+with the same transform objects in the same process, also a median. Memory is
+the sum over ranks of the peak resident set (``getrusage``), per grid point,
+raw and net of a 16^3 run of the same model and rank count (interpreter and
+libraries).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import statistics
+import subprocess
+import sys
+import time
+
+
+def _case(model: str, n: int, steps: int):
+    from solver.case import case_from_dict
+    params = {"lowpe": {"Re": 400.0, "BPe": 1.0},
+              "boussinesq": {"Re": 400.0, "B": 1.0, "Pr": 1.0}}[model]
+    return case_from_dict({
+        "name": f"bench-{model}-{n}", "model": model, "parameters": params,
+        "grid": {"Nx": n, "Ny": n, "Nz": n},
+        "box": {"Lx": "4*pi", "Ly": "2*pi", "Lz": "2*pi"},
+        "time": {"max_steps": steps, "dt": 1e-3, "adaptive": False},
+        "initial": {"kind": "laminar_noise", "amplitude": 0.1},
+        "compute": {"fftw_effort": "measure"},
+    })
+
+
+def worker(model: str, n: int, steps: int) -> dict | None:
+    """Measure inside one MPI job; returns the record on rank 0."""
+    from solver.parallel import world
+    from solver.simulation import Simulation
+    comm = world()
+    t0 = time.perf_counter()
+    sim = Simulation(_case(model, n, steps), comm)
+    setup = comm.max(time.perf_counter() - t0)
+    t0 = time.perf_counter()
+    sim.advance()
+    first = comm.max(time.perf_counter() - t0)
+    sim.advance()
+    fwd0, inv0 = sim.fft.count_forward, sim.fft.count_inverse
+    times = []
+    for _ in range(steps):
+        comm.barrier()
+        t0 = time.perf_counter()
+        sim.advance()
+        times.append(comm.max(time.perf_counter() - t0))
+    n_fwd = (sim.fft.count_forward - fwd0) // steps
+    n_inv = (sim.fft.count_inverse - inv0) // steps
+    fft = sim.fft
+    phys = fft.empty_physical()
+    phys[...] = sim.physical()[0]
+    spec = fft.empty_spectral()
+    floor = []
+    for _ in range(steps):
+        comm.barrier()
+        t0 = time.perf_counter()
+        for _ in range(n_inv):
+            fft.inverse(spec, phys)
+        for _ in range(n_fwd):
+            fft.forward(phys, spec)
+        floor.append(comm.max(time.perf_counter() - t0))
+    rss = comm.sum(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024.0)
+    if comm.rank != 0:
+        return None
+    step = statistics.median(times)
+    fl = statistics.median(floor)
+    return {"model": model, "n": n, "ranks": comm.size, "step_seconds": step,
+            "floor_seconds": fl, "ratio": step / fl, "transforms_per_step": n_fwd + n_inv,
+            "first_step_seconds": first, "setup_seconds": setup,
+            "peak_rss_bytes": rss, "bytes_per_point": rss / n ** 3}
+
+
+def _mpiexec() -> str:
+    here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    return here if os.path.exists(here) else "mpiexec"
+
+
+def launch(model: str, n: int, ranks: int, steps: int) -> dict:
+    env = dict(os.environ, OMP_NUM_THREADS="1")
+    cmd = [_mpiexec(), "-n", str(ranks), sys.executable, "-m", "tools.benchmark",
+           "--worker", model, str(n), str(steps)]
+    res = subprocess.run(cmd, capture_output=True, text=True, env=env)
+    if res.returncode != 0:
+        raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks failed:\n"
+                           + res.stderr[-2000:])
+    return json.loads(res.stdout.strip().splitlines()[-1])
+
+
+def machine() -> str:
+    cpu = "unknown CPU"
+    try:
+        with open("/proc/cpuinfo") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    cpu = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        pass
+    return f"{cpu}, {os.cpu_count()} cores"
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(prog="scripts/bench", description=__doc__.splitlines()[0])
+    ap.add_argument("--sizes", type=int, nargs="+", default=[64, 128])
+    ap.add_argument("--ranks", type=int, nargs="+", default=[1, 2])
+    ap.add_argument("--models", nargs="+", default=["lowpe", "boussinesq"],
+                    choices=["lowpe", "boussinesq"])
+    ap.add_argument("--steps", type=int, default=15, help="timed steps per case (median)")
+    ap.add_argument("--json", metavar="FILE", help="also write the records as JSON")
+    ap.add_argument("--worker", nargs=3, help=argparse.SUPPRESS)
+    args = ap.parse_args(argv)
+    if args.worker:
+        rec = worker(args.worker[0], int(args.worker[1]), int(args.worker[2]))
+        if rec is not None:
+            print(json.dumps(rec))
+        return 0
+    from solver.version import __version__
+    records = []
+    print(f"shearmix {__version__} benchmark on {machine()}")
+    print(f"{'model':11s} {'grid':>6s} {'ranks':>5s} {'s/step':>9s} {'floor s':>9s} "
+          f"{'ratio':>6s} {'FFTs':>5s} {'1st step':>8s} {'B/pt raw':>9s} {'B/pt net':>9s}")
+    for model in args.models:
+        for ranks in args.ranks:
+            base = launch(model, 16, ranks, 3)["peak_rss_bytes"]
+            for n in args.sizes:
+                r = launch(model, n, ranks, args.steps)
+                r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base) / n ** 3
+                records.append(r)
+                print(f"{model:11s} {n:>4d}^3 {ranks:5d} {r['step_seconds']:9.4f} "
+                      f"{r['floor_seconds']:9.4f} {r['ratio']:6.2f} "
+                      f"{r['transforms_per_step']:5d} {r['first_step_seconds']:8.3f} "
+                      f"{r['bytes_per_point']:9.0f} {r['bytes_per_point_net']:9.0f}",
+                      flush=True)
+    if args.json:
+        with open(args.json, "w") as fh:
+            json.dump({"version": __version__, "machine": machine(), "records": records},
+                      fh, indent=1)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
