@@ -1,7 +1,8 @@
 """Leading eigenvalue of the normal-mode problem, with automatic truncation.
 
 The leading eigenvalue is the one of largest real part (growth rate
-``Re sigma``; the mode goes as ``exp(sigma t)``).  Small matrices go to the
+``Re sigma``; the mode goes as ``exp(sigma t)``).  Small matrices (up to
+``DENSE_MAX_POINT`` unknowns for one point, ``DENSE_MAX`` in maps) go to the
 dense QR algorithm (LAPACK ``geev`` through ``scipy.linalg``); large ones to
 ARPACK in shift-invert mode (``scipy.sparse.linalg.eigs``) around a guess
 taken from a smaller truncation, with a sparse LU of the block-tridiagonal
@@ -25,7 +26,9 @@ import scipy.sparse.linalg as spla
 from .operators import Operator, build
 from .params import FlowParams
 
-DENSE_MAX = 240      # matrix size up to which the dense solver is used
+DENSE_MAX = 160      # size up to which maps use the dense solver (sparse is faster above)
+DENSE_MAX_POINT = 400  # size up to which a single-point solve stays dense (more robust)
+GUESSES = 6          # leading eigenvalues of the previous truncation used as shifts
 M_START = 8
 M_MAX = 512
 RTOL = 1e-7
@@ -88,10 +91,12 @@ def _dense(op: Operator, vectors: bool):
     return ev, V
 
 
-def _shift_invert(A, shift: complex, vectors: bool, nev: int = 4):
-    # a shift just right of the guess keeps the wanted eigenvalue the nearest one
+def _shift_invert(A, shift: complex, vectors: bool, nev: int = 1):
+    # a shift just right of the guess keeps the wanted eigenvalue the nearest one;
+    # one eigenvalue per guess: asking for more makes ARPACK slow to converge on
+    # the clustered, strongly damped part of the spectrum
     shift = complex(shift.real + 1e-3 * (1 + abs(shift)), shift.imag)
-    ncv = min(A.shape[0] - 1, max(2 * nev + 1, 24))
+    ncv = min(A.shape[0] - 1, max(2 * nev + 6, 8))
     try:
         res = spla.eigs(A, k=nev, sigma=shift, which="LM", ncv=ncv, maxiter=400,
                         return_eigenvectors=vectors)
@@ -115,7 +120,8 @@ def _best(ev, V):
     return complex(s.real, abs(s.imag)), v
 
 
-def leading(op: Operator, guesses=None, vectors: bool = False, method: str = "auto"):
+def leading(op: Operator, guesses=None, vectors: bool = False, method: str = "auto",
+            dense_max: int = DENSE_MAX):
     """Leading eigenvalue (and eigenvector) of ``op``.
 
     ``method``: ``"dense"``, ``"sparse"`` (needs ``guesses``) or ``"auto"``
@@ -131,7 +137,7 @@ def leading(op: Operator, guesses=None, vectors: bool = False, method: str = "au
         raise ValueError(f"method: must be auto, dense or sparse, got {method!r}")
     if isinstance(guesses, (complex, float, int)):
         guesses = [complex(guesses)]
-    use_sparse = method == "sparse" or (method == "auto" and op.size > DENSE_MAX and guesses)
+    use_sparse = method == "sparse" or (method == "auto" and op.size > dense_max and guesses)
     if use_sparse:
         if not guesses:
             raise ValueError("guesses: the sparse shift-invert solver needs guess eigenvalues")
@@ -151,7 +157,7 @@ def leading(op: Operator, guesses=None, vectors: bool = False, method: str = "au
             return s, v, "sparse", _candidates(ev, max(len(guesses), 1))
     ev, V = _dense(op, vectors)
     s, v = _best(ev, V)
-    return s, v, "dense", _candidates(ev)
+    return s, v, "dense", _candidates(ev, GUESSES)
 
 
 def rate_scale(params: FlowParams, kx: float, kz: float) -> float:
@@ -184,7 +190,8 @@ def solve(params: FlowParams, kx: float, kz: float, ky0: float = 0.0, M: int | N
     cands = None
     while True:
         op = build(params, kx, kz, ky0, m)
-        s, v, how, cands = leading(op, guesses=cands, vectors=vectors, method=method)
+        s, v, how, cands = leading(op, guesses=cands, vectors=vectors, method=method,
+                                   dense_max=DENSE_MAX_POINT)
         history.append((m, s))
         if prev is not None and abs(s - prev) <= tol:
             return Eigen(params, kx, kz, ky0, s, m, how, True, abs(s - prev), history, v,

@@ -27,6 +27,9 @@ from .operators import build
 from .params import FlowParams
 
 
+MAP_GUESSES = 4   # shifts per grid point for the sparse solver
+
+
 @dataclasses.dataclass
 class GrowthMap:
     """Leading eigenvalue on a ``(kx, kz)`` grid: ``sigma[i, j]`` at ``kx[i]``, ``kz[j]``."""
@@ -89,7 +92,7 @@ def leading_at(params, kx, kz, ky0, M, vectors=False):
         return s, v, op
     coarse = build(params, kx, kz, ky0, _coarse_M(params, M))
     _, _, _, cands = eigen.leading(coarse, method="dense")
-    s, v, _, _ = eigen.leading(op, guesses=cands, vectors=vectors, method="auto")
+    s, v, _, _ = eigen.leading(op, guesses=cands[:MAP_GUESSES], vectors=vectors, method="auto")
     return s, v, op
 
 
