@@ -90,8 +90,12 @@ def _ars343() -> IMEXTableau:
     A_im[3, 1], A_im[3, 2], A_im[3, 3] = b1, b2, g
     A_ex = np.zeros((4, 4))
     A_ex[1, 0] = g
-    A_ex[2, 0], A_ex[2, 1] = 0.3212788860, 0.3966543747
-    A_ex[3, 0], A_ex[3, 1], A_ex[3, 2] = -0.105858296, 0.5529291479, 0.5529291479
+    # printed: a31 = 0.3212788860, a41 = -0.105858296; taken here from the row sums
+    # (A_ex 1 = c) so that consistency holds to round-off
+    A_ex[2, 1] = 0.3966543747
+    A_ex[2, 0] = (1 + g) / 2 - A_ex[2, 1]
+    A_ex[3, 1], A_ex[3, 2] = 0.5529291479, 0.5529291479
+    A_ex[3, 0] = 1.0 - A_ex[3, 1] - A_ex[3, 2]
     b = np.array([0.0, b1, b2, g])
     return IMEXTableau("ars343", 3, A_ex, A_im, b, b.copy(),
                        np.array([0.0, g, (1 + g) / 2, 1.0]),

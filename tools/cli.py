@@ -64,6 +64,12 @@ def cmd_check(args) -> int:
 
 def cmd_keys(args) -> int:
     from solver.case import key_table
+    if args.markdown:
+        print("| key | default | allowed | meaning |")
+        print("|---|---|---|---|")
+        for key, default, allowed, doc in key_table():
+            print(f"| `{key}` | {default} | {allowed} | {doc} |")
+        return 0
     for key, default, allowed, doc in key_table():
         print(f"{key:28s} {default:32s} {allowed}  -- {doc}")
     return 0
@@ -129,6 +135,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("keys", help="list every case-file key with its default")
+    p.add_argument("--markdown", action="store_true", help="as a Markdown table")
     p.set_defaults(func=cmd_keys)
 
     for name in _PLUGINS:
