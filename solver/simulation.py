@@ -196,7 +196,8 @@ class Simulation:
     # ------------------------------------------------------------ the run loop
     def default_outputs(self) -> list:
         """The outputs a case asks for (the time series, and more as the tool grows)."""
-        return [TimeSeriesOutput(int(self.case.get("output.diagnostics_every")))]
+        from .spectra import spectra_outputs
+        return [TimeSeriesOutput(int(self.case.get("output.diagnostics_every")))] + spectra_outputs(self.case)
 
     def run(self, output: str | None = None, append: bool = False, log=None,
             outputs: list | None = None) -> int:
