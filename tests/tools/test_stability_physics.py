@@ -6,10 +6,9 @@ import math
 
 import numpy as np
 import pytest
-import scipy.linalg
 
 from tools.stability import FlowParams, build, solve, spectrum
-from tools.stability.maps import neutral_value, leading_at
+from tools.stability.maps import neutral_value
 
 
 # ---------------------------------------------------------------- Kolmogorov flow, 2D
@@ -98,7 +97,8 @@ def _match(a, b, tol):
 
 def test_internal_gravity_waves_inviscid():
     """No shear, no diffusion: internal gravity waves omega^2 = B kh^2/|k|^2
-    (textbook, e.g. Sutherland 2010, Internal Gravity Waves, ch. 3)."""
+    (textbook result; reference quoted from memory: Sutherland 2010, Internal Gravity
+    Waves, ch. 3)."""
     p = FlowParams("boussinesq", Re=math.inf, B=3.0, Pe=math.inf, U_L=0.0)
     kx, kz, ky0, M = 0.7, 1.3, 0.2, 4
     ev = spectrum(build(p, kx, kz, ky0, M))
@@ -135,7 +135,7 @@ def test_low_peclet_damping_exact(kx, kz, ky0):
 
 # ---------------------------------------------------------------- limits and consistency
 def test_full_model_tends_to_low_peclet():
-    """Lignières 1999 (A&A 348): the Boussinesq equations at Pe -> 0 with B Pe fixed
+    """Lignières 1999 (A&A 348; reference quoted from memory): the Boussinesq equations at Pe -> 0 with B Pe fixed
     reduce to the low-Péclet model; the eigenvalue difference falls like Pe."""
     BPe, Re = 2.0, 40.0
     lo = FlowParams("lowpe", Re=Re, BPe=BPe)

@@ -414,7 +414,7 @@ def run_neutral(args):
 
 
 def _box(case):
-    from .boxfit import Box, detunings
+    from .boxfit import Box
     box = Box.from_case(case)
     return box
 
