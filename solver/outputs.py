@@ -8,6 +8,7 @@ snapshots, spectra) subclass :class:`Output` and are added to the list.
 """
 from __future__ import annotations
 
+import math
 import os
 
 from . import diagnostics as diag
@@ -38,6 +39,34 @@ class EveryNSteps:
 
     def __call__(self, sim) -> bool:
         return sim.step_count % self.every == 0
+
+
+class EveryTime:
+    """Cadence in simulated time: due at the first step boundary at or after each
+    multiple of ``every`` (the adaptive step does not land on them exactly).
+
+    ``start(t, now)`` arms it at the start of a run segment: due at once when
+    ``now``, else at the first multiple after ``t`` (a restart continues the
+    cadence of the run it continues). ``advance(t)`` moves it past ``t`` after
+    a write.
+    """
+
+    def __init__(self, every: float):
+        self.every = float(every)
+        self.next_t = 0.0
+
+    def _after(self, t: float) -> float:
+        # a time a rounding error short of a multiple counts as that multiple
+        return (math.floor(t / self.every + 1e-9) + 1) * self.every
+
+    def start(self, t: float, now: bool) -> None:
+        self.next_t = t if now else self._after(t)
+
+    def advance(self, t: float) -> None:
+        self.next_t = self._after(t)
+
+    def __call__(self, sim) -> bool:
+        return sim.t >= self.next_t - 1e-9 * max(1.0, abs(sim.t))
 
 
 class TimeSeriesOutput(Output):

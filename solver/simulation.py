@@ -6,7 +6,9 @@ series and printing progress on rank 0.
 
 Exit codes of ``run`` (and of ``shearmix run``): 0 finished, 2 bad input,
 3 blow-up (NaN or time-step collapse), 4 stopped early on the wall-clock
-budget (restart from the last checkpoint).
+budget or on SIGTERM/SIGUSR1, after writing a checkpoint (restart from it),
+5 a checkpoint or snapshot could not be written (the run stopped; the last
+complete checkpoint is intact). See docs/checkpoints.md.
 """
 from __future__ import annotations
 
@@ -27,10 +29,13 @@ from .initial import apply_initial
 from .models import Model, model_for
 from .parallel import world
 from .outputs import TimeSeriesOutput
+from .slabfile import WriteFailed
+from .stopsignals import StopRequests, signal_name
 from .tendency import PseudoSpectralTendency
 from .transforms import SlabTransform, load_wisdom, save_wisdom
 
 EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
+EXIT_WRITE_FAILED = 5
 
 
 class BlowUp(RuntimeError):
@@ -77,8 +82,11 @@ class Simulation:
                                           dtype=np.complex128)
         self.state[...] = 0
         self.tableau = TABLEAUX[case.get("time.scheme")]
-        self._n0 = np.empty_like(self.state)
         self.stepper = make_stepper(self.tableau, self.tendency, self.operator, self.state)
+        # the first-stage tendency goes straight into the stepper's register when it has one
+        self._n0 = getattr(self.stepper, "tendency", None)
+        if self._n0 is None:
+            self._n0 = np.empty_like(self.state)
         self.t = 0.0
         self.step_count = 0
         self.dt = float(case.get("time.dt"))
@@ -195,13 +203,28 @@ class Simulation:
 
     # ------------------------------------------------------------ the run loop
     def default_outputs(self) -> list:
-        """The outputs a case asks for (the time series, and more as the tool grows)."""
+        """The outputs a case asks for: time series, spectra, snapshots, checkpoints.
+
+        The checkpoint comes last so that what else is due at a step boundary
+        is on disk before the checkpoint a restart would continue from.
+        """
+        from .checkpoint import checkpoint_outputs
+        from .snapshots import snapshot_outputs
         from .spectra import spectra_outputs
-        return [TimeSeriesOutput(int(self.case.get("output.diagnostics_every")))] + spectra_outputs(self.case)
+        return ([TimeSeriesOutput(int(self.case.get("output.diagnostics_every")))]
+                + spectra_outputs(self.case) + snapshot_outputs(self.case)
+                + checkpoint_outputs(self.case))
 
     def run(self, output: str | None = None, append: bool = False, log=None,
             outputs: list | None = None) -> int:
-        """Step to a stop condition, writing the outputs. Returns an exit code."""
+        """Step to a stop condition, writing the outputs. Returns an exit code.
+
+        ``append`` continues the files of a run (a restart). SIGTERM and
+        SIGUSR1 stop the run at the next step boundary, like the wall-clock
+        budget; the budget stops it early enough to write the last checkpoint
+        (margin: twice the longest step so far plus the last checkpoint's
+        write time).
+        """
         case, comm = self.case, self.comm
         out_dir = output or case.output_directory
         log = log or (lambda msg: print(msg, flush=True))
@@ -217,20 +240,36 @@ class Simulation:
                 fh.write(f"# written by shearmix {__import__('solver').__version__}\n")
                 fh.write(case.to_yaml())
         comm.barrier()
-        for out in self.outputs:
-            out.open(self, out_dir, append)
+        opened = []
+        try:
+            for out in self.outputs:
+                out.open(self, out_dir, append)
+                opened.append(out)
+        except WriteFailed as exc:
+            say(f"shearmix: {exc}; nothing was run")
+            for out in opened:
+                out.close(self, "failed")
+            return EXIT_WRITE_FAILED
         series = next((o for o in self.outputs if isinstance(o, TimeSeriesOutput)), None)
+        checkpoints = [o for o in self.outputs if hasattr(o, "write_seconds")]
         start_wall = time.monotonic()
         start_step, start_t = self.step_count, self.t
         last_report = (start_wall, self.step_count)
         code, reason = EXIT_FINISHED, "finished"
         say(f"shearmix: {case.name}: model {case.model}, grid {self.grid.shape}, "
             f"{comm.size} rank(s), convention {case.convention}")
+        stop = StopRequests().install()
+        longest, previous = 0.0, time.monotonic()
         try:
             while True:
                 n0 = self._stage_zero(want_speed=True)
                 if not math.isfinite(self.tendency.cfl_rate):
                     raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
+                # one collective call: a signal seen by any rank, the slowest rank's clock
+                signum, elapsed = comm.max(np.array([float(stop.received),
+                                                     time.monotonic() - start_wall]))
+                current = time.monotonic()
+                longest, previous = max(longest, current - previous), current
                 for out in self.outputs:
                     if out.due(self):
                         out.write(self)
@@ -247,18 +286,35 @@ class Simulation:
                        (max_steps is not None and self.step_count - start_step >= max_steps)
                 if done:
                     break
-                if wall is not None and comm.max(time.monotonic() - start_wall) >= wall * 3600:
+                if signum:
+                    say(f"shearmix: {signal_name(signum)} received: writing a checkpoint and "
+                        f"stopping at step {self.step_count}, t = {self.t:.6g}")
+                    code, reason = EXIT_STOPPED_EARLY, "stopped"
+                    break
+                margin = 2 * longest + max((o.write_seconds for o in checkpoints), default=0.0)
+                if wall is not None and elapsed + margin >= wall * 3600:
                     say(f"shearmix: wall-clock budget of {wall:g} h reached at step "
-                        f"{self.step_count}, t = {self.t:.6g}")
+                        f"{self.step_count}, t = {self.t:.6g} (margin {margin:.1f} s kept for "
+                        "the last checkpoint)")
                     code, reason = EXIT_STOPPED_EARLY, "stopped"
                     break
                 self._step_with(n0, t_end)
         except BlowUp as exc:
             say(f"shearmix: {exc}")
             code, reason = EXIT_BLOWUP, "blowup"
-        for out in self.outputs:
-            out.close(self, reason)
-        if code == EXIT_BLOWUP:
+        except WriteFailed as exc:
+            say(f"shearmix: {exc}; stopping: the last complete checkpoint is kept")
+            code, reason = EXIT_WRITE_FAILED, "failed"
+        try:
+            for out in self.outputs:
+                try:
+                    out.close(self, reason)
+                except WriteFailed as exc:
+                    say(f"shearmix: {exc}; the last complete checkpoint is kept")
+                    code, reason = EXIT_WRITE_FAILED, "failed"
+        finally:
+            stop.restore()
+        if code in (EXIT_BLOWUP, EXIT_WRITE_FAILED):
             return code
         elapsed = time.monotonic() - start_wall
         say(f"shearmix: {'finished' if code == 0 else 'stopped'} at step {self.step_count}, "
