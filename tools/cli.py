@@ -1,12 +1,16 @@
 """``shearmix``: the one command-line door to the engine and the tools.
 
-    shearmix run CASE.yaml [--output DIR] [--set key=value ...]
+    shearmix run CASE.yaml [--output DIR] [--set key=value ...] [--restart PATH|latest]
+                           [--wall-hours H]
+    shearmix info FILE [--verify]
     shearmix check CASE.yaml [--set key=value ...] [--ranks P]
     shearmix keys
 
 Under MPI: ``mpirun -n P shearmix run CASE.yaml``. Exit codes: 0 done, 1 an
 unexpected failure, 2 bad input (nothing written), 3 blow-up, 4 stopped early
-on the wall-clock budget (restart it).
+on the wall-clock budget or SIGTERM/SIGUSR1 with a checkpoint written (restart
+it), 5 a checkpoint or snapshot could not be written (the last complete one is
+kept). See docs/checkpoints.md.
 """
 from __future__ import annotations
 
@@ -75,6 +79,17 @@ def cmd_keys(args) -> int:
     return 0
 
 
+def _on_rank0(comm, work):
+    """Run ``work()`` on rank 0 and share its result or its error message with all ranks."""
+    result, error = None, None
+    if comm.rank == 0:
+        try:
+            result = work()
+        except ValueError as exc:  # RestartError, CheckpointError, HeaderError
+            error = str(exc)
+    return comm.bcast((result, error))
+
+
 def cmd_run(args) -> int:
     from solver.case import CaseError
     from solver.grid import GridError, allowed_rank_counts
@@ -84,6 +99,8 @@ def cmd_run(args) -> int:
 
     comm = world()
     rank0 = comm.rank == 0
+    if args.wall_hours is not None:
+        args.set = (args.set or []) + [f"time.wall_hours={args.wall_hours}"]
     case, err = _load(args)
     if err:
         return _fail(err) if rank0 else EXIT_BAD_INPUT
@@ -93,22 +110,66 @@ def cmd_run(args) -> int:
         return _fail(msg) if rank0 else EXIT_BAD_INPUT
     out_dir = args.output or case.output_directory
     series = os.path.join(out_dir, SERIES_FILE)
-    if os.path.exists(series) and not case.get("output.overwrite"):
-        msg = (f"{out_dir}: already holds a run ({SERIES_FILE}); choose another --output or set "
-               "output.overwrite=true to replace it")
-        return _fail(msg) if rank0 else EXIT_BAD_INPUT
-    if case.get("initial.kind") == "file" and not os.path.exists(case.get("initial.path")):
-        msg = f"{case.get('initial.path')}: initial.path: no such perturbation file"
-        return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    checked = None
+    if args.restart:
+        from solver.restart import check, resolve
+        found, msg = _on_rank0(comm, lambda: resolve(args.restart, out_dir))
+        if msg:
+            return _fail(msg) if rank0 else EXIT_BAD_INPUT
+        path, skipped = found
+        try:
+            checked = check(path, case, comm)
+        except ValueError as exc:
+            return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
+        own = os.path.join(os.path.realpath(out_dir), "checkpoints")
+        if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own \
+                and os.path.exists(series):
+            msg = (f"{out_dir}: already holds a run ({SERIES_FILE}) and {path} is not one of its "
+                   "checkpoints; continue it in a new --output folder")
+            return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    else:
+        if os.path.exists(series) and not case.get("output.overwrite"):
+            msg = (f"{out_dir}: already holds a run ({SERIES_FILE}); continue it with --restart "
+                   "latest, choose another --output or set output.overwrite=true to replace it")
+            return _fail(msg) if rank0 else EXIT_BAD_INPUT
+        if case.get("initial.kind") == "file" and not os.path.exists(case.get("initial.path")):
+            msg = f"{case.get('initial.path')}: initial.path: no such perturbation file"
+            return _fail(msg) if rank0 else EXIT_BAD_INPUT
     if rank0:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
     from solver.simulation import Simulation
     try:
-        sim = Simulation(case, comm)
+        sim = Simulation(case, comm, initial=checked is None)
     except (InitialStateError, GridError, CaseError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
-    return sim.run(output=out_dir)
+    if checked is not None:
+        from solver.restart import RestartError, apply, truncate_series
+        try:
+            apply(sim, path, checked)
+        except RestartError as exc:
+            return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
+        if rank0:
+            for why in skipped:
+                print(f"shearmix: warning: passed over {why}", file=sys.stderr)
+            changed = ", ".join(f"{k} {a!r} -> {b!r}" for k, (a, b) in checked["changes"].items())
+            print(f"shearmix: restarting from {path} at step {sim.step_count}, t = {sim.t:.10g}"
+                  + (f"; changed: {changed}" if changed else ""), flush=True)
+            dropped = truncate_series(series, sim.step_count)
+            if dropped:
+                print(f"shearmix: {series}: dropped {dropped} record(s) from step "
+                      f"{sim.step_count} on, written after that checkpoint", flush=True)
+        comm.barrier()
+    return sim.run(output=out_dir, append=checked is not None)
+
+
+def cmd_info(args) -> int:
+    from tools.fileinfo import describe
+    try:
+        print(describe(args.file, verify=args.verify))
+    except ValueError as exc:
+        return _fail(str(exc))
+    return 0
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -126,7 +187,19 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--output", "-o", help="run folder (default: output.directory or runs/<name>)")
     p.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="override a case key, e.g. --set parameters.Re=200 (repeatable)")
+    p.add_argument("--restart", metavar="PATH|latest",
+                   help="continue from a checkpoint file, a run folder's newest one, or "
+                        "'latest' (the newest complete checkpoint of the output folder)")
+    p.add_argument("--wall-hours", type=float, metavar="H",
+                   help="wall-clock budget: write a checkpoint and exit 4 before H hours "
+                        "(same as --set time.wall_hours=H)")
     p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("info", help="what a checkpoint or snapshot holds (no fields loaded)")
+    p.add_argument("file", help="checkpoint or snapshot file (.h5)")
+    p.add_argument("--verify", action="store_true",
+                   help="also check every checksum of a checkpoint (reads the fields)")
+    p.set_defaults(func=cmd_info)
 
     p = sub.add_parser("check", help="validate a case and print its derived quantities")
     p.add_argument("case")
