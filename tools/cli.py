@@ -22,7 +22,7 @@ import sys
 EXIT_BAD_INPUT = 2
 
 #: optional subcommand families: module with add_arguments(subparsers)
-_PLUGINS = ("tools.stability.cli", "tools.analysis_cli")
+_PLUGINS = ("tools.stability.cli", "tools.analysis_cli", "tools.sweep_cli", "tools.plot_cli")
 
 
 def _fail(message: str, code: int = EXIT_BAD_INPUT) -> int:

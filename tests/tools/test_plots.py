@@ -1,0 +1,119 @@
+"""Figures: valid PNG files from a tiny run, from hand-made sweep rows, and slices
+from a checkpoint whose fields are known in closed form.
+
+PNG check: the 8-byte signature and the IHDR chunk (width, height) of the
+PNG specification (ISO/IEC 15948, section 5.2 and 11.2.2).
+Slices: a checkpoint holding single Craya-Herring modes must give back
+``u`` and ``w`` from the frame's definition (Herring 1974, Phys. Fluids 17,
+859; restated in solver/basis.py): vortical ``e1 = (ky, -kx, 0)/kh``,
+poloidal ``e2 = (kx kz, ky kz, -kh^2)/(kh |k|)``.
+"""
+import math
+import os
+import struct
+import subprocess
+import sys
+
+import h5py
+import numpy as np
+import pytest
+
+pytest.importorskip("matplotlib")
+
+from solver.simulation import Simulation  # noqa: E402
+from tools import plots  # noqa: E402
+from tools.fields import FieldsNotFound, run_fields  # noqa: E402
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+
+
+def assert_png(path, min_size=(200, 150)):
+    data = open(path, "rb").read()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG signature"
+    assert data[12:16] == b"IHDR"
+    width, height = struct.unpack(">II", data[16:24])
+    assert width >= min_size[0] and height >= min_size[1]
+    assert 2_000 < len(data) < 1_000_000
+
+
+@pytest.fixture(scope="module")
+def tiny_run(tmp_path_factory):
+    from solver.case import case_from_dict
+    out = tmp_path_factory.mktemp("run")
+    case = case_from_dict({
+        "model": "lowpe", "parameters": {"Re": 40.0, "BPe": 2.0},
+        "grid": {"Nx": 16, "Ny": 16, "Nz": 8}, "time": {"t_end": 1.0, "dt": 0.02, "adaptive": False},
+        "initial": {"kind": "laminar_noise", "amplitude": 0.2, "seed": 2},
+        "output": {"diagnostics_every": 1, "progress_every": 10 ** 6, "spectra_every": 0.1},
+        "compute": {"fftw_effort": "estimate", "wisdom": ""}})
+    assert Simulation(case).run(output=str(out), log=lambda m: None) == 0
+    return out
+
+
+def test_series_and_spectra_png(tiny_run, tmp_path):
+    assert_png(plots.plot_series(str(tiny_run), str(tmp_path / "s.png")))
+    assert_png(plots.plot_spectra(str(tiny_run), str(tmp_path / "sp.png"), start=0.5))
+
+
+def _write_checkpoint(path, shape, lengths, modes):
+    """A file in the checkpoint layout of solver/checkpoint.py holding given amplitudes."""
+    nx, ny, nz = shape
+    state = {f: np.zeros((nx, ny, nz // 2 + 1), complex) for f in ("a", "p")}
+    for field, (ix, iy, iz), value in modes:
+        state[field][ix % nx, iy % ny, iz] = value
+    os.makedirs(os.path.dirname(path), exist_ok=True)
+    with h5py.File(path, "w") as fh:
+        fh.attrs.update(grid=np.array(shape), lengths=np.array(lengths), t=3.5, complete=1)
+        for f, s in state.items():
+            fh[f"state/{f}"] = np.stack([s.real, s.imag], axis=-1)
+
+
+def test_slices_from_checkpoint_match_closed_form(tmp_path):
+    shape, lengths = (8, 8, 8), (2 * math.pi,) * 3
+    A, B = 0.8, 0.6
+    # nz > 0 modes stand for themselves and their conjugates: amplitude/2 gives amplitude*cos
+    _write_checkpoint(str(tmp_path / "checkpoints" / "chk_000000010.h5"), shape, lengths,
+                      [("a", (1, 1, 2), A / 2), ("p", (2, 0, 1), B / 2)])
+    f = run_fields(str(tmp_path))
+    x, y, z = np.meshgrid(*(np.arange(8) * 2 * math.pi / 8,) * 3, indexing="ij")
+    # vortical (kx, ky, kz) = (1, 1, 2): e1 = (1, -1, 0)/sqrt(2)
+    # poloidal (2, 0, 1): kh = 2, |k| = sqrt(5): e2 = (2/sqrt(5), 0, -2/sqrt(5))
+    u = A / math.sqrt(2) * np.cos(x + y + 2 * z) + B * 2 / math.sqrt(5) / 2 * np.cos(2 * x + z)
+    w = -B * 2 / math.sqrt(5) * np.cos(2 * x + z)
+    assert f["t"] == 3.5 and f["lengths"] == lengths
+    assert np.abs(f["u"] - u).max() < 1e-12 and np.abs(f["w"] - w).max() < 1e-12
+    assert_png(plots.plot_slices(f, lengths, str(tmp_path / "slices.png"), title="modes"))
+
+
+def test_no_fields_is_one_clear_error(tmp_path):
+    with pytest.raises(FieldsNotFound, match="output.snapshot_every"):
+        run_fields(str(tmp_path))
+
+
+def test_sweep_figures_png(tmp_path):
+    from tools.sweep_summary import fit_rows
+    rows = []
+    for i, (bpe, re_) in enumerate([(0.1, 20), (1, 20), (10, 20), (100, 20), (1, 40)]):
+        rows.append({"BPe": bpe, "Re": re_, "eta": 0.1 * (i + 1),
+                     "regime": ("isotropic", "stratified_turbulence", "intermittent",
+                                "viscous_layers", "undetermined")[i],
+                     "Lz_turb": 2 * bpe ** (-1 / 3), "Lz_turb_err": 0.1, "w_rms": bpe ** (-1 / 6),
+                     "w_rms_err": 0.01, "D_flux": bpe ** -0.5, "D_flux_err": 0.01,
+                     "D_estimate": 2 * bpe ** -0.5, "D_estimate_err": 0.02})
+    assert_png(plots.plot_regime_map(rows, str(tmp_path / "map.png")))
+    assert_png(plots.plot_scaling(rows, fit_rows(rows), str(tmp_path / "scaling.png")))
+
+
+def test_plot_command(tiny_run, tmp_path):
+    env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
+    code = "import sys; from tools.cli import main; sys.exit(main(sys.argv[1:]))"
+    r = subprocess.run([sys.executable, "-c", code, "plot", str(tiny_run), "-o", str(tmp_path)],
+                       capture_output=True, text=True, env=env, timeout=120)
+    assert r.returncode == 0, r.stderr
+    assert_png(tmp_path / "series.png")
+    assert_png(tmp_path / "spectra.png")
+    has_fields = os.path.isdir(tiny_run / "checkpoints") or os.path.isdir(tiny_run / "snapshots")
+    assert os.path.exists(tmp_path / "slices.png") == has_fields
+    r = subprocess.run([sys.executable, "-c", code, "plot", str(tmp_path / "absent")],
+                       capture_output=True, text=True, env=env, timeout=120)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "not a run folder" in r.stderr

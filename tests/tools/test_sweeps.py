@@ -1,0 +1,213 @@
+"""Sweeps: parameter values, expansion, launch, early stop and resume, status, summary.
+
+References outside the code under test: ``numpy.geomspace``/``numpy.linspace``
+for the ranges; the engine's own exit codes and files for the end-to-end run;
+an exact power law for the fits across a sweep.
+"""
+import math
+import os
+import subprocess
+import sys
+
+import h5py
+import numpy as np
+import pytest
+import yaml
+
+from tools.sweeps import SweepError, expand, load_sweep, parameter_values, read_manifest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+
+TINY_BASE = {
+    "model": "lowpe",
+    "parameters": {"Re": 40, "BPe": 1, "Pe": 0.1},
+    "grid": {"Nx": 16, "Ny": 16, "Nz": 8},
+    "time": {"t_end": 1.0, "dt": 0.02, "adaptive": False},
+    "initial": {"kind": "laminar_noise", "amplitude": 0.1, "seed": 3},
+    "output": {"diagnostics_every": 1, "progress_every": 1000, "spectra_every": 0.25},
+    "compute": {"fftw_effort": "estimate", "wisdom": ""},
+}
+
+
+def _write(tmp_path, sweep, name="sweep.yaml"):
+    p = tmp_path / name
+    p.write_text(yaml.safe_dump(sweep, sort_keys=False))
+    return p
+
+
+def _cli(*args, cwd):
+    code = "import sys; from tools.cli import main; sys.exit(main(sys.argv[1:]))"
+    # one rank per member: skip MPI start-up (solver/parallel.py)
+    env = dict(os.environ, PYTHONPATH=ROOT, OMP_NUM_THREADS="1", SHEARMIX_SERIAL="1")
+    return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
+                          capture_output=True, text=True, timeout=300)
+
+
+# ------------------------------------------------------------------ values
+def test_ranges_match_numpy():
+    assert parameter_values({"log": [0.1, 30], "count": 6}) == pytest.approx(
+        np.geomspace(0.1, 30, 6), rel=1e-11)
+    assert parameter_values({"from": 1, "to": 2, "count": 5}) == pytest.approx(
+        np.linspace(1, 2, 5), rel=1e-12)
+    assert parameter_values({"from": 0.1, "to": 0.5, "step": 0.1}) == [0.1, 0.2, 0.3, 0.4, 0.5]
+    assert parameter_values([3, 1]) == [3, 1]
+
+
+@pytest.mark.parametrize("spec,words", [
+    ({"log": [0, 1], "count": 3}, "positive"),
+    ({"from": 1, "to": 2}, "exactly one of 'count' or 'step'"),
+    ({"from": 1, "to": 2, "step": -1}, "does not lead"),
+    ({"log": [1, 2], "count": 0}, "count must be an integer >= 1"),
+    ({"from": 1, "to": 2, "count": 2, "spacing": 3}, "unknown range key 'spacing'"),
+    ([], "empty list"),
+])
+def test_bad_ranges_name_the_key(spec, words):
+    with pytest.raises(SweepError) as e:
+        parameter_values(spec, "s.yaml", "vary.parameters.BPe")
+    msg = str(e.value)
+    assert msg.startswith("s.yaml: vary.parameters.BPe:") and words in msg and "\n" not in msg
+
+
+# ------------------------------------------------------------------ expansion
+def test_product_zip_and_chain(tmp_path):
+    s = {"sweep": "grid", "base_case": TINY_BASE,
+         "vary": {"parameters.BPe": [4, 1, 2], "parameters.Re": [30, 40]}}
+    sw = load_sweep(_write(tmp_path, s))
+    assert [m.name for m in sw.members] == ["BPe4-Re30", "BPe4-Re40", "BPe1-Re30", "BPe1-Re40",
+                                            "BPe2-Re30", "BPe2-Re40"]
+    sw = load_sweep(_write(tmp_path, {**s, "vary": {"parameters.BPe": [1, 2], "parameters.Re": [30, 40]},
+                                      "combine": "zip"}))
+    assert [m.values for m in sw.members] == [{"parameters.BPe": 1, "parameters.Re": 30},
+                                              {"parameters.BPe": 2, "parameters.Re": 40}]
+    sw = load_sweep(_write(tmp_path, {**s, "chain": "parameters.BPe"}))
+    chains = [[m.name for m in c] for c in sw.chains()]
+    assert chains == [["BPe1-Re30", "BPe2-Re30", "BPe4-Re30"], ["BPe1-Re40", "BPe2-Re40", "BPe4-Re40"]]
+
+
+@pytest.mark.parametrize("change,words", [
+    ({"vary": {"parameters.BPee": [1]}}, "vary.parameters.BPee: not a case key"),
+    ({"vary": {"parameters.BPe": [1, 2], "parameters.Re": [1]}, "combine": "zip"}, "equal length"),
+    ({"combine": "cross"}, "combine: must be one of product, zip"),
+    ({"vary": {"parameters.BPe": [-1]}}, "parameters.BPe"),
+    ({"chain": "parameters.Re"}, "chain: must be one of the varied keys"),
+    ({"vary": {"parameters.BPe": [1.00001, 1.00002]}}, "same name"),
+    ({"launch": {"ranks": 0}}, "launch.ranks"),
+    ({"colour": 1}, "unknown key 'colour'"),
+])
+def test_bad_sweep_files_name_the_problem(tmp_path, change, words):
+    s = {"sweep": "bad", "base_case": TINY_BASE, "vary": {"parameters.BPe": [1, 2]}, **change}
+    with pytest.raises(SweepError) as e:
+        load_sweep(_write(tmp_path, s))
+    assert words in str(e.value) and "\n" not in str(e.value)
+
+
+def test_expand_writes_cases_and_manifest_and_protects_results(tmp_path):
+    (tmp_path / "base.yaml").write_text(yaml.safe_dump(TINY_BASE))
+    s = {"sweep": "tiny", "base": "base.yaml", "set": {"time.t_end": 0.5},
+         "vary": {"parameters.BPe": {"log": [1, 100], "count": 3}}}
+    path = _write(tmp_path, s)
+    sw = load_sweep(path)
+    assert expand(sw, log=lambda m: None) == ["BPe1", "BPe10", "BPe100"]
+    man = read_manifest(sw.directory)
+    assert [m["name"] for m in man["members"]] == ["BPe1", "BPe10", "BPe100"]
+    case = yaml.safe_load((tmp_path / "tiny" / "cases" / "BPe10.yaml").read_text())
+    assert case["parameters"]["BPe"] == pytest.approx(10.0) and case["time"]["t_end"] == 0.5
+    assert case["name"] == "tiny-BPe10" and (tmp_path / "tiny" / "runs" / "BPe10").is_dir()
+    # results in one member: its case may not change, and a failed attempt writes nothing
+    (tmp_path / "tiny" / "runs" / "BPe10" / "timeseries.h5").write_bytes(b"x")
+    before = (tmp_path / "tiny" / "cases" / "BPe1.yaml").read_text()
+    s["set"]["time.t_end"] = 0.7
+    with pytest.raises(SweepError, match="BPe10 already has results"):
+        expand(load_sweep(_write(tmp_path, s)), log=lambda m: None)
+    assert (tmp_path / "tiny" / "cases" / "BPe1.yaml").read_text() == before
+    r = _cli("sweep", "expand", str(path), cwd=tmp_path)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "already has results" in r.stderr
+
+
+# ------------------------------------------------------------------ end to end
+def _series(run_dir):
+    with h5py.File(os.path.join(run_dir, "timeseries.h5")) as fh:
+        return fh["t"][()], fh["step"][()]
+
+
+def _states(table):
+    import re
+    return [re.split(r"\s{2,}", line)[1] for line in table.splitlines() if line.startswith("BPe")]
+
+
+def test_tiny_sweep_runs_stops_resumes_and_summarizes(tmp_path):
+    pytest.importorskip("solver.restart", reason="needs the engine's checkpoints and --restart")
+    s = {"sweep": "tiny", "base_case": TINY_BASE, "vary": {"parameters.BPe": [0.5, 5]},
+         "launch": {"ranks": 1, "parallel": 2}}
+    path = _write(tmp_path, s)
+    runs = tmp_path / "tiny" / "runs"
+    # first pass: a tiny wall budget stops both members early (exit 4, checkpoint written)
+    r = _cli("sweep", "run", str(path), "--wall-hours", "1e-7", cwd=tmp_path)
+    assert r.returncode == 4, r.stdout + r.stderr
+    st = _cli("sweep", "status", str(path), cwd=tmp_path)
+    assert st.returncode == 0 and _states(st.stdout) == ["stopped early"] * 2, st.stdout
+    for m in ("BPe0.5", "BPe5"):
+        assert os.listdir(runs / m / "checkpoints"), "a stopped run must leave a checkpoint"
+        t, _ = _series(runs / m)
+        assert t[-1] < 1.0
+    # second pass: both resume from their checkpoints and finish
+    r = _cli("sweep", "run", str(path), cwd=tmp_path)
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert r.stdout.count("resuming") == 2
+    for m in ("BPe0.5", "BPe5"):
+        t, step = _series(runs / m)
+        assert t[-1] == pytest.approx(1.0) and np.all(np.diff(t) > 0)
+        assert list(step) == list(range(int(step[-1]) + 1))  # continuous, no gap, no repeat
+        assert "--restart latest" in (runs / m / "run.log").read_text()
+    st = _cli("sweep", "status", str(path), cwd=tmp_path)
+    assert _states(st.stdout) == ["finished"] * 2 and "chk_" in st.stdout, st.stdout
+    # a third pass has nothing to do
+    r = _cli("sweep", "run", str(path), cwd=tmp_path)
+    assert r.returncode == 0 and r.stdout.count("skipped (finished)") == 2
+    # summary across the sweep: one row per member, fits need 3 BPe values
+    r = _cli("sweep", "summarize", str(path), "--no-plots", "--start", "0", cwd=tmp_path)
+    assert r.returncode == 0, r.stderr
+    rows = list(__import__("csv").DictReader(open(tmp_path / "tiny" / "summary.csv")))
+    assert [row["member"] for row in rows] == ["BPe0.5", "BPe5"]
+    assert [float(row["BPe"]) for row in rows] == [0.5, 5.0]
+    assert "needs 3 or more distinct BPe values" in r.stdout
+
+
+def test_failed_member_reports_its_reason(tmp_path):
+    base = {**TINY_BASE, "time": {"max_steps": 200, "dt": 50.0, "adaptive": False},
+            "parameters": {"Re": 1e6, "BPe": 1}, "initial": {"kind": "laminar_noise",
+                                                             "amplitude": 0.5}}
+    s = {"sweep": "boom", "base_case": base, "vary": {"parameters.BPe": [1]}}
+    path = _write(tmp_path, s)
+    r = _cli("sweep", "run", str(path), cwd=tmp_path)
+    assert r.returncode == 1
+    st = _cli("sweep", "status", str(path), cwd=tmp_path)
+    line = [x for x in st.stdout.splitlines() if x.startswith("BPe1")][0]
+    assert "failed" in line and "blow-up" in line
+    # not retried unless asked
+    r = _cli("sweep", "run", str(path), cwd=tmp_path)
+    assert "use --retry" in r.stdout
+
+
+# ------------------------------------------------------------------ fits across a sweep
+def test_fit_rows_recovers_exact_power_law_and_selects():
+    from tools.sweep_summary import fit_rows
+    rng = np.random.default_rng(4)
+    bpe = np.geomspace(0.1, 100, 7)
+    rows = []
+    for i, x in enumerate(bpe):
+        y = 2.0 * x ** (-1 / 3) * math.exp(0.01 * rng.standard_normal())
+        rows.append({"BPe": float(x), "Lz_turb": y, "Lz_turb_err": 0.01 * y,
+                     "w_rms": 0.5 * x ** (-1 / 6), "w_rms_err": float("nan"),
+                     "D_flux": float("nan"), "D_estimate": 1.0,
+                     "regime": "stratified_turbulence" if i < 5 else "viscous_layers"})
+    fits = {f["y"]: f for f in fit_rows(rows)}
+    lz = fits["Lz_turb"]
+    assert lz["weighted"] and lz["p_lo"] < -1 / 3 < lz["p_hi"] and lz["consistent"]
+    w = fits["w_rms"]  # exact data, no error bars: unweighted, exact exponent
+    assert not w["weighted"] and w["p"] == pytest.approx(-1 / 6, abs=1e-12)
+    assert "p" not in fits["D_flux"] and "needs 3" in fits["D_flux"]["note"]
+    sel = {f["y"]: f for f in fit_rows(rows, regime="stratified_turbulence")}
+    assert sel["Lz_turb"]["n"] == 5 and sel["Lz_turb"]["x_hi"] == pytest.approx(bpe[4])
+    sel = {f["y"]: f for f in fit_rows(rows, x_range=(1, 50))}  # 1, 3.16, 10, 31.6
+    assert sel["Lz_turb"]["n"] == 4
