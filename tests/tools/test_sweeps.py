@@ -211,3 +211,61 @@ def test_fit_rows_recovers_exact_power_law_and_selects():
     assert sel["Lz_turb"]["n"] == 5 and sel["Lz_turb"]["x_hi"] == pytest.approx(bpe[4])
     sel = {f["y"]: f for f in fit_rows(rows, x_range=(1, 50))}  # 1, 3.16, 10, 31.6
     assert sel["Lz_turb"]["n"] == 4
+
+
+# ------------------------------------------------------------------ batch scripts
+@pytest.mark.parametrize("system,submit", [("slurm", "sbatch"), ("pbs", "qsub")])
+def test_batch_script_resubmits_on_exit_4_only(tmp_path, system, submit):
+    """Render a job script with a stand-in run command and a fake submitter on PATH,
+    then execute it with bash: exit 4 -> one resubmission, counted and capped."""
+    from tools.batch import write_batch_scripts
+    sw = load_sweep(_write(tmp_path, {"sweep": "jobs", "base_case": TINY_BASE,
+                                      "vary": {"parameters.BPe": [1, 2]}}))
+    flag = tmp_path / "code"
+    paths = write_batch_scripts(sw, system, walltime="01:00:00", ranks=2, max_resubmits=2,
+                                account="acct7", queue="short",
+                                run_command=f"(exit $(cat {flag}))")
+    assert len(paths) == 2
+    text = open(paths[0]).read()
+    assert "@" not in text.replace("@NAME@", "") and "acct7" in text and "short" in text
+    assert subprocess.run(["bash", "-n", paths[0]]).returncode == 0
+    fake = tmp_path / "bin"
+    fake.mkdir()
+    (fake / submit).write_text(f"#!/bin/sh\necho \"$@\" >> {tmp_path}/submitted\n")
+    (fake / submit).chmod(0o755)
+    env = dict(os.environ, PATH=f"{fake}:{os.environ['PATH']}")
+
+    def job(code):
+        flag.write_text(str(code))
+        return subprocess.run(["bash", paths[0]], env=env, capture_output=True, text=True).returncode
+
+    submitted = tmp_path / "submitted"
+    assert job(0) == 0 and not submitted.exists()
+    assert job(3) == 3 and not submitted.exists()
+    assert job(4) == 4 and submitted.read_text().split() == [paths[0]]
+    assert job(4) == 4 and len(submitted.read_text().split()) == 2
+    assert job(4) == 4 and len(submitted.read_text().split()) == 2  # cap of 2 reached
+
+
+def test_batch_rejects_bad_walltime(tmp_path):
+    path = _write(tmp_path, {"sweep": "jobs", "base_case": TINY_BASE,
+                             "vary": {"parameters.BPe": [1]}})
+    r = _cli("sweep", "batch", str(path), "--system", "slurm", "--walltime", "90min", cwd=tmp_path)
+    assert r.returncode == 2 and "--walltime: must be HH:MM:SS" in r.stderr
+    assert not (tmp_path / "jobs").exists()
+
+
+def test_chained_member_starts_from_its_neighbour(tmp_path):
+    pytest.importorskip("solver.restart", reason="needs the engine's checkpoints and --restart")
+    s = {"sweep": "chain", "base_case": {**TINY_BASE, "time": {"t_end": 0.4, "dt": 0.02,
+                                                               "adaptive": False}},
+         "vary": {"parameters.BPe": [5, 1]}, "chain": "parameters.BPe"}
+    path = _write(tmp_path, s)
+    r = _cli("sweep", "run", str(path), "--parallel", "2", cwd=tmp_path)
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert r.stdout.index("BPe1: finished") < r.stdout.index("BPe5: starting")
+    assert "BPe5: starts from BPe1's state at t = 0.4" in r.stdout
+    t, step = _series(tmp_path / "chain" / "runs" / "BPe5")
+    assert t[0] == pytest.approx(0.4) and t[-1] == pytest.approx(0.8)
+    with h5py.File(tmp_path / "chain" / "runs" / "BPe5" / "timeseries.h5") as fh:
+        assert "BPe: 5" in fh.attrs["case"]
