@@ -70,7 +70,7 @@ def snapshot(directory):
     x, y, z = sim.grid.physical_coordinates()
     one = np.ones(sim.grid.physical_shape)
     kx = 2 * np.pi / case.Lx
-    sim.set_physical(np.sin(2 * y) * np.cos(z) * one, np.cos(3 * x) * one,
+    sim.set_physical(np.sin(2 * y) * np.cos(z) * one, np.cos(x) * one,
                      np.cos(kx * x) * np.sin(y) * one)
     os.makedirs(directory, exist_ok=True)
     write_snapshot(sim, directory, single=False, stride=3)
