@@ -111,3 +111,30 @@ def test_lz_turb_single_vertical_wavenumber(make_case):
     kz = 2.0 * np.arange(e_h.size)  # Lz = pi: kz = 2 m
     assert e_h[3] > 0 and np.delete(e_h, 3).max() < 1e-14 * e_h[3]
     assert lz_turb(e_h, kz) == pytest.approx(2 * np.pi / 6, rel=1e-12)
+
+
+@pytest.mark.mpi
+def test_spectra_do_not_depend_on_rank_count(tmp_path):
+    """The same seeded state (rank-independent noise, solver/initial.py) on 1 and 2 ranks."""
+    import os
+    import shutil
+    import subprocess
+    import sys
+    here = os.path.dirname(os.path.abspath(__file__))
+    mpiexec = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    mpiexec = mpiexec if os.path.exists(mpiexec) else shutil.which("mpiexec")
+    if mpiexec is None:
+        pytest.skip("no mpiexec on this machine")
+    sys.path.insert(0, here)
+    from spectra_probe import spectra
+    serial = spectra()
+    out = tmp_path / "two.npz"
+    env = dict(os.environ, OMP_NUM_THREADS="1")
+    env.pop("SHEARMIX_SERIAL", None)
+    r = subprocess.run([mpiexec, "-n", "2", sys.executable, os.path.join(here, "spectra_probe.py"),
+                        str(out)], capture_output=True, text=True, timeout=300, env=env)
+    assert r.returncode == 0, r.stderr[-2000:]
+    two = np.load(out)
+    assert int(two["size"]) == 2
+    for k, v in serial.items():
+        assert np.allclose(two[k], v, rtol=1e-12, atol=1e-15 * np.abs(v).max()), k
