@@ -78,8 +78,7 @@ class Grid:
         #: largest resolved wavenumber after dealiasing (smallest over directions)
         self.kmax = min(2 * np.pi / L * c for L, c in zip(self.lengths, self.cutoff))
 
-        self.kh2 = np.ascontiguousarray(self.kx ** 2 + self.ky ** 2 + 0 * self.kz)
-        self.k2 = np.ascontiguousarray(self.kh2 + self.kz ** 2)
+        self.k2 = np.ascontiguousarray(self.kx ** 2 + self.ky ** 2 + self.kz ** 2)
         # half-space weights: modes with nz > 0 stand for themselves and their conjugates
         self.half_weight = np.where(self.nz_index > 0, 2.0, 1.0)
 

@@ -20,6 +20,8 @@ from fractions import Fraction
 
 import numpy as np
 
+from . import kernels
+
 
 @dataclass(frozen=True)
 class IMEXTableau:
@@ -168,6 +170,20 @@ class LowStorageIMEX:
         s = tab.stages
         y, z = self.stage, self.tendency
         np.copyto(y, x)
+        if kernels.use_numba() and hasattr(self.operator, "full_entry"):
+            for i in range(s):
+                if i == 0 and n0 is not None:
+                    if n0 is not z:
+                        np.copyto(z, n0)
+                else:
+                    self.explicit(y, t + tab.c[i] * h, z)
+                bi = tab.b_ex[i]
+                last = i == s - 1
+                nxt = i if last else i + 1
+                kernels.stage_update(self.operator, x, y, z, h * bi,
+                                     h * (tab.A_ex[nxt, i] - bi), h * (tab.A_im[nxt, i] - bi),
+                                     h * tab.A_im[nxt, nxt], last)
+            return x
         for i in range(s):
             if i == 0 and n0 is not None:
                 if n0 is not z:

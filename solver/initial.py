@@ -24,7 +24,7 @@ class InitialStateError(ValueError):
 def laminar_physical(sim):
     """``U_L sin(kf y)`` on the local slab (streamwise velocity of the laminar flow)."""
     _, y, _ = sim.grid.physical_coordinates()
-    return sim.case.U_L * np.sin(sim.case.kf * y) * np.ones(sim.grid.physical_shape)
+    return np.broadcast_to(sim.case.U_L * np.sin(sim.case.kf * y), sim.grid.physical_shape)
 
 
 def noise_block(shape, m: int, seed: int, stream: int):
@@ -42,9 +42,12 @@ def noise_block(shape, m: int, seed: int, stream: int):
     return block
 
 
-def scatter_block(grid, block, m: int) -> np.ndarray:
-    """Place a global mode block into this rank's spectral slab."""
-    out = np.zeros(grid.spectral_shape, dtype=complex)
+def scatter_block(grid, block, m: int, out: np.ndarray | None = None) -> np.ndarray:
+    """Place a global mode block into this rank's spectral slab (zero elsewhere)."""
+    if out is None:
+        out = np.zeros(grid.spectral_shape, dtype=complex)
+    else:
+        out[...] = 0
     nx, ny, _ = grid.shape
     for iy in range(grid.ny_local):
         n_y = int(grid.ny_index[0, iy, 0])
@@ -61,10 +64,9 @@ def apply_initial(sim) -> None:
     kind = case.get("initial.kind")
     amp = float(case.get("initial.amplitude"))
     g = sim.grid
-    zero = np.zeros(g.physical_shape)
-    u = laminar_physical(sim) if kind in ("laminar_noise", "laminar", "mode", "file") else zero
+    u = laminar_physical(sim) if kind in ("laminar_noise", "laminar", "mode", "file") else None
     if kind == "mode":
-        sim.set_physical(u, zero, zero, zero if "T" in sim.fields else None)
+        sim.set_physical(u, None, None, None)
         sim.add_mode(case.get("initial.mode.nx"), case.get("initial.mode.ny"),
                      case.get("initial.mode.nz"), case.get("initial.mode.component"), amp)
         return
@@ -73,20 +75,20 @@ def apply_initial(sim) -> None:
         sim.set_physical(u + amp * pert["u"], amp * pert["v"], amp * pert["w"],
                          amp * pert["T"] if "T" in sim.fields else None)
         return
-    sim.set_physical(u, zero, zero, zero if "T" in sim.fields else None)
+    sim.set_physical(u, None, None, None)
     if kind != "laminar_noise" or amp == 0:
         return
     m = min(int(case.get("initial.noise_modes")), *g.cutoff)
     seed = int(case.get("initial.seed"))
+    work = sim.tendency.P  # the tendency's buffers: no full-size temporaries
     if "T" in sim.fields:
-        T = scatter_block(g, noise_block(g.shape, m, seed, 3), m) * g.dealias
+        T = scatter_block(g, noise_block(g.shape, m, seed, 3), m, out=work[0])
         rms = np.sqrt(sim.comm.sum(g.volume_sum(np.abs(T) ** 2)))
         sim.state[2] += T * (amp / rms)
     else:
-        comps = [scatter_block(g, noise_block(g.shape, m, seed, s), m) * g.dealias
+        comps = [scatter_block(g, noise_block(g.shape, m, seed, s), m, out=work[s])
                  for s in range(3)]
-        a = np.empty(g.spectral_shape, complex)
-        p = np.empty(g.spectral_shape, complex)
+        a, p = work[3], work[4]
         sim.basis.project(*comps, a, p)
         a *= sim.basis.nonzero
         p *= sim.basis.nonzero

@@ -40,9 +40,19 @@ class LinearOperator:
         if any(len(b) > 2 for b in self.blocks):
             raise ValueError("linear blocks larger than 2x2 are not supported")
         self._zero = np.zeros(1)
+        self._full = {}
 
     def entry(self, r, c):
         return self.entries.get((r, c), self._zero)
+
+    def full_entry(self, r, c):
+        """The coefficient as a contiguous array of the field's shape (for fused kernels)."""
+        key = ("full", r, c)
+        if key not in self._full:
+            shape = np.broadcast_shapes(*(np.shape(v) for v in self.entries.values()))
+            self._full[key] = np.ascontiguousarray(
+                np.broadcast_to(self.entry(r, c), shape), dtype=np.float64)
+        return self._full[key]
 
     def apply(self, y: np.ndarray) -> np.ndarray:
         """In place: ``y <- L y``."""

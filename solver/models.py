@@ -40,7 +40,7 @@ class Model:
 
     def operator(self, grid: Grid, basis: CrayaHerring) -> LinearOperator:
         """Sum the linear terms' coefficients into the implicit operator."""
-        g = SimpleNamespace(k2=grid.k2, kh2=grid.kh2, alpha=basis.alpha, beta=basis.beta)
+        g = SimpleNamespace(k2=grid.k2, alpha=basis.alpha, beta=basis.beta)
         entries: dict = {}
         for term in self.linear_terms:
             for key, value in term.linear(g).items():

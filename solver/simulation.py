@@ -96,25 +96,31 @@ class Simulation:
 
     # ------------------------------------------------------------ state in and out
     def set_physical(self, u, v, w, T=None) -> None:
-        """Set the state from local physical slabs (velocity projected to divergence free)."""
-        g, fft = self.grid, self.fft
-        comps = []
-        for f in (u, v, w):
-            phys = fft.empty_physical()
-            phys[...] = f
-            spec = fft.empty_spectral()
-            fft.forward(phys, spec)
-            spec *= self.tendency.mask
-            comps.append(spec)
+        """Set the state from local physical slabs (velocity projected to divergence free).
+
+        A component given as ``None`` is zero. The tendency's work arrays are used,
+        so no full-size temporary is made.
+        """
+        fft, nl = self.fft, self.tendency
+        comps = nl.P[:3]
+        for f, spec in zip((u, v, w), comps):
+            if f is None:
+                spec[...] = 0
+                continue
+            np.copyto(nl.product, f)
+            fft.forward(nl.product, spec)
+            nl.dealias_normalise(spec)
         self.basis.project(*comps, self.state[0], self.state[1])
         self.state[0] *= self.basis.nonzero
         self.state[1] *= self.basis.nonzero
         if "T" in self.fields:
-            phys = fft.empty_physical()
-            phys[...] = 0 if T is None else T
-            fft.forward(phys, self.state[2])
-            self.state[2] *= self.tendency.mask
-            self.state[2] *= self.basis.nonzero
+            if T is None:
+                self.state[2] = 0
+            else:
+                np.copyto(nl.product, T)
+                fft.forward(nl.product, self.state[2])
+                nl.dealias_normalise(self.state[2])
+                self.state[2] *= self.basis.nonzero
 
     def physical(self):
         """Local physical slabs ``(u, v, w, T or None)`` of the current state (copies)."""

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import kernels
 from .basis import CrayaHerring
 from .grid import Grid
 from .terms import Advection, ShearForcing
@@ -28,16 +29,40 @@ class PseudoSpectralTendency:
         self.has_T = "T" in self.fields
         self.velocity = [transform.empty_physical() for _ in range(3)]
         self.temperature = transform.empty_physical() if self.has_T else None
-        self.product = transform.empty_physical()
-        self.scratch = transform.empty_spectral()
-        self.acc = [transform.empty_spectral() for _ in range(3)]
-        self.mask = grid.dealias / float(grid.npoints)  # dealias and normalise at once
+        # the transform's own planning buffers serve as work arrays
+        self.product = transform.physical
+        # transforms of the five products; P[0] doubles as the inverse transforms' input
+        self.P = [transform.spectral] + [transform.empty_spectral() for _ in range(4)]
+        self.scratch = self.P[0]
+        self._mask = None
+        self.scale = 1.0 / float(grid.npoints)
+        self.keep = (np.ascontiguousarray(np.abs(grid.nx_index.ravel()) <= grid.cutoff[0]),
+                     np.ascontiguousarray(np.abs(grid.ny_index.ravel()) <= grid.cutoff[1]),
+                     np.ascontiguousarray(grid.nz_index.ravel() <= grid.cutoff[2]))
+        self.kvec = (np.ascontiguousarray(grid.kx.ravel()), np.ascontiguousarray(grid.ky.ravel()),
+                     np.ascontiguousarray(grid.kz.ravel()))
         self.forcing = self._forcing_modes(forcing)
         self.want_speed = False
         #: max over the domain of |u|/dx + |v|/dy + |w|/dz from the last evaluation
         self.cfl_rate = 0.0
         #: max velocity magnitude from the last evaluation that asked for it
         self.max_speed = 0.0
+
+    @property
+    def mask(self) -> np.ndarray:
+        """Dealiasing mask times 1/N (made on first use: the compiled path needs none)."""
+        if self._mask is None:
+            self._mask = self.grid.dealias / float(self.grid.npoints)
+        return self._mask
+
+    def dealias_normalise(self, spec: np.ndarray) -> np.ndarray:
+        """In place: apply the 2/3 rule and the forward transform's 1/N."""
+        k = self.keep
+        spec *= self.scale
+        spec[~k[0]] = 0
+        spec[:, ~k[1]] = 0
+        spec[:, :, ~k[2]] = 0
+        return spec
 
     def _forcing_modes(self, forcing):
         if forcing is None or forcing.F0 == 0:
@@ -59,8 +84,9 @@ class PseudoSpectralTendency:
     def to_physical(self, y: np.ndarray) -> None:
         """Velocity (and temperature) of state ``y`` on the grid, into the work arrays."""
         a, p = y[0], y[1]
+        b = self.basis
         for comp in range(3):
-            self.basis.to_cartesian(a, p, comp, self.scratch)
+            kernels.cartesian(a, p, b.s, b.c, b.alpha, b.beta, comp, self.scratch)
             self.fft.inverse(self.scratch, self.velocity[comp])
         if self.has_T:
             np.copyto(self.scratch, y[2])
@@ -68,61 +94,40 @@ class PseudoSpectralTendency:
 
     def _speed_limits(self):
         u, v, w = self.velocity
-        dx, dy, dz = self.grid.dx
-        q = self.product
-        np.abs(u, out=q)
-        q *= 1.0 / dx
-        q += np.abs(v) * (1.0 / dy)
-        q += np.abs(w) * (1.0 / dz)
-        self.cfl_rate = float(self.grid_comm_max(q.max()))
-        np.multiply(u, u, out=q)
-        q += v * v
-        q += w * w
-        self.max_speed = float(np.sqrt(self.grid_comm_max(q.max())))
+        rate, speed2 = kernels.speed_limits(u, v, w, self.grid.dx, self.product)
+        comm = self.fft.comm
+        self.cfl_rate = float(comm.max(rate))
+        self.max_speed = float(np.sqrt(comm.max(speed2)))
 
     def grid_comm_max(self, value):
         return self.fft.comm.max(value)
 
-    def _add_divergence(self, product, coeffs):
-        """``acc[i] += -i k_j (product)^`` for each (i, k_j) in ``coeffs``."""
-        self.fft.forward(product, self.scratch)
-        self.scratch *= self.mask
-        for i, k in coeffs:
-            self.acc[i] -= 1j * k * self.scratch
-
     def __call__(self, y: np.ndarray, t: float, out: np.ndarray) -> np.ndarray:
         g = self.grid
-        out[...] = 0
+        if self.advection is None:
+            out[...] = 0
         if self.advection is not None or self.want_speed:
             self.to_physical(y)
         if self.want_speed:
             self._speed_limits()
         if self.advection is not None:
             u, v, w = self.velocity
-            q = self.product
-            for acc in self.acc:
-                acc[...] = 0
-            kx, ky, kz = g.kx, g.ky, g.kz
-            np.multiply(u, u, out=q)
-            q -= w * w
-            self._add_divergence(q, [(0, kx)])
-            np.multiply(v, v, out=q)
-            q -= w * w
-            self._add_divergence(q, [(1, ky)])
-            np.multiply(u, v, out=q)
-            self._add_divergence(q, [(0, ky), (1, kx)])
-            np.multiply(u, w, out=q)
-            self._add_divergence(q, [(0, kz), (2, kx)])
-            np.multiply(v, w, out=q)
-            self._add_divergence(q, [(1, kz), (2, ky)])
-            self.basis.project(self.acc[0], self.acc[1], self.acc[2], out[0], out[1])
+            q, P, fwd = self.product, self.P, self.fft.forward
+            fwd(kernels.product(u, u, q, w), P[0])
+            fwd(kernels.product(v, v, q, w), P[1])
+            fwd(kernels.product(u, v, q), P[2])
+            fwd(kernels.product(u, w, q), P[3])
+            fwd(kernels.product(v, w, q), P[4])
+            b = self.basis
+            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec,
+                                       b.s, b.c, b.alpha, b.beta, out)
             if self.has_T and self.advection.with_temperature:
                 T = self.temperature
-                self.acc[0][...] = 0
-                for comp, k in enumerate((kx, ky, kz)):
-                    np.multiply(self.velocity[comp], T, out=q)
-                    self._add_divergence(q, [(0, k)])
-                out[2] += self.acc[0]
+                for comp in range(3):
+                    fwd(kernels.product(self.velocity[comp], T, q), P[comp])
+                kernels.scalar_advection(P, self.mask, self.scale, self.keep, self.kvec, out[2])
+            elif self.has_T:
+                out[2] = 0
         for idx, fa, fp in self.forcing:
             out[0][idx] += fa
             out[1][idx] += fp

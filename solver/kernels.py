@@ -1,0 +1,422 @@
+"""Fused element-wise kernels of the time step (Numba), with NumPy equivalents.
+
+A pseudo-spectral step should cost little more than its FFTs. In NumPy each
+element-wise expression is a pass over memory with temporaries; here each
+job is one compiled loop over the spectral (or physical) slab that reads and
+writes each element once. The NumPy versions define the arithmetic; the
+Numba versions must agree with them to round-off (tests/solver/test_kernels.py).
+
+Set ``SHEARMIX_KERNELS=numpy`` to use the NumPy versions (and when Numba is
+not installed). Compiled kernels are cached on disk (``cache=True``) so later
+runs start in well under a second.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+try:  # pragma: no cover - depends on the installation
+    import numba
+    HAVE_NUMBA = True
+except ImportError:  # pragma: no cover
+    numba = None
+    HAVE_NUMBA = False
+
+
+_BACKEND = {"name": None}
+
+
+def set_backend(name: str | None) -> None:
+    """'numba', 'numpy', or None to follow ``SHEARMIX_KERNELS`` again."""
+    if name not in (None, "numba", "numpy"):
+        raise ValueError(f"kernel backend must be numba or numpy, got {name!r}")
+    _BACKEND["name"] = name
+
+
+def use_numba() -> bool:
+    name = _BACKEND["name"] or os.environ.get("SHEARMIX_KERNELS", "numba")
+    return HAVE_NUMBA and name != "numpy"
+
+
+def _jit(fn):
+    if not HAVE_NUMBA:
+        return None
+    return numba.njit(cache=True, fastmath=False, nogil=True)(fn)
+
+
+# ---------------------------------------------------------------- frame -> Cartesian
+def _cartesian_loop(a, p, s, c, alpha, beta, comp, out):
+    # real arithmetic throughout: Numba's complex operators do not vectorise
+    nx, ny, nz = out.shape
+    for i in range(nx):
+        for j in range(ny):
+            sij = s[i, j, 0]
+            cij = c[i, j, 0]
+            if comp == 0:
+                for k in range(nz):
+                    f = cij * beta[i, j, k]
+                    out[i, j, k] = complex(sij * a[i, j, k].real + f * p[i, j, k].real,
+                                           sij * a[i, j, k].imag + f * p[i, j, k].imag)
+            elif comp == 1:
+                for k in range(nz):
+                    f = sij * beta[i, j, k]
+                    out[i, j, k] = complex(f * p[i, j, k].real - cij * a[i, j, k].real,
+                                           f * p[i, j, k].imag - cij * a[i, j, k].imag)
+            else:
+                for k in range(nz):
+                    f = -alpha[i, j, k]
+                    out[i, j, k] = complex(f * p[i, j, k].real, f * p[i, j, k].imag)
+
+
+_cartesian_nb = _jit(_cartesian_loop)
+
+
+def cartesian(a, p, s, c, alpha, beta, comp, out):
+    """Cartesian component ``comp`` of ``a e1 + p e2`` (see solver/basis.py) into ``out``."""
+    if use_numba():
+        _cartesian_nb(a, p, s, c, alpha, beta, comp, out)
+        return out
+    if comp == 0:
+        np.multiply(s, a, out=out)
+        out += c * beta * p
+    elif comp == 1:
+        np.multiply(-c, a, out=out)
+        out += s * beta * p
+    else:
+        np.multiply(-alpha, p, out=out)
+    return out
+
+
+# ---------------------------------------------------------------- -i k_j (product)^
+def _divergence_loop(spec, scale, keepx, keepy, keepz, kx, ky, kz, acc, t1, d1, t2, d2,
+                     assign1, assign2):
+    nx, ny, nz = spec.shape
+    for i in range(nx):
+        for j in range(ny):
+            kept = keepx[i] and keepy[j]
+            for k in range(nz):
+                if not (kept and keepz[k]):
+                    if assign1:
+                        acc[t1, i, j, k] = 0.0
+                    if t2 >= 0 and assign2:
+                        acc[t2, i, j, k] = 0.0
+                    continue
+                vr = spec[i, j, k].real * scale
+                vi = spec[i, j, k].imag * scale
+                # -i * kd * v = kd * (vi - i vr)
+                kd = kx[i] if d1 == 0 else (ky[j] if d1 == 1 else kz[k])
+                if assign1:
+                    acc[t1, i, j, k] = complex(kd * vi, -kd * vr)
+                else:
+                    old = acc[t1, i, j, k]
+                    acc[t1, i, j, k] = complex(old.real + kd * vi, old.imag - kd * vr)
+                if t2 >= 0:
+                    kd = kx[i] if d2 == 0 else (ky[j] if d2 == 1 else kz[k])
+                    if assign2:
+                        acc[t2, i, j, k] = complex(kd * vi, -kd * vr)
+                    else:
+                        old = acc[t2, i, j, k]
+                        acc[t2, i, j, k] = complex(old.real + kd * vi, old.imag - kd * vr)
+
+
+_divergence_nb = _jit(_divergence_loop)
+
+
+def add_divergence(spec, mask, scale, keep, kvec, acc, t1, d1, t2=-1, d2=0,
+                   assign1=False, assign2=False):
+    """``acc[t] += -i k_d (D spec / N)`` for (t1, d1) and, if ``t2 >= 0``, (t2, d2).
+
+    With ``assign1`` (``assign2``) the first (second) target is overwritten
+    instead of accumulated, which spares zeroing it beforehand.
+
+    ``D`` is the dealiasing mask: ``mask`` is ``D/N`` as one array (NumPy path),
+    ``keep`` the three 1-D factors of ``D`` with ``scale = 1/N`` and ``kvec`` the
+    three 1-D wavenumber arrays (Numba path).
+    """
+    if use_numba():
+        _divergence_nb(spec, scale, keep[0], keep[1], keep[2], kvec[0], kvec[1], kvec[2],
+                       acc, t1, d1, t2, d2, assign1, assign2)
+        return
+    v = spec * mask
+    shapes = ((-1, 1, 1), (1, -1, 1), (1, 1, -1))
+    for t, d, assign in ((t1, d1, assign1), (t2, d2, assign2)):
+        if t >= 0:
+            if assign:
+                acc[t] = 0
+            acc[t] -= 1j * kvec[d].reshape(shapes[d]) * v
+
+
+# ---------------------------------------------------------------- advection from products
+def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s, c, alpha,
+                   beta, out):
+    nx, ny, nz = P0.shape
+    for i in range(nx):
+        kxi = kx[i]
+        for j in range(ny):
+            kyj = ky[j]
+            sij = s[i, j, 0]
+            cij = c[i, j, 0]
+            kept = keepx[i] and keepy[j]
+            for k in range(nz):
+                if not (kept and keepz[k]):
+                    out[0, i, j, k] = 0.0
+                    out[1, i, j, k] = 0.0
+                    continue
+                kzk = kz[k]
+                p0, p1, p2, p3, p4 = P0[i, j, k], P1[i, j, k], P2[i, j, k], \
+                    P3[i, j, k], P4[i, j, k]
+                # S = k_j (u_i u_j)^ per component; N = -i S / N_points
+                sxr = kxi * p0.real + kyj * p2.real + kzk * p3.real
+                sxi = kxi * p0.imag + kyj * p2.imag + kzk * p3.imag
+                syr = kxi * p2.real + kyj * p1.real + kzk * p4.real
+                syi = kxi * p2.imag + kyj * p1.imag + kzk * p4.imag
+                szr = kxi * p3.real + kyj * p4.real
+                szi = kxi * p3.imag + kyj * p4.imag
+                nxr, nxi = sxi * scale, -sxr * scale
+                nyr, nyi = syi * scale, -syr * scale
+                nzr, nzi = szi * scale, -szr * scale
+                be = beta[i, j, k]
+                al = alpha[i, j, k]
+                out[0, i, j, k] = complex(sij * nxr - cij * nyr, sij * nxi - cij * nyi)
+                out[1, i, j, k] = complex(be * (cij * nxr + sij * nyr) - al * nzr,
+                                          be * (cij * nxi + sij * nyi) - al * nzi)
+
+
+def _scalar_flux_loop(P0, P1, P2, scale, keepx, keepy, keepz, kx, ky, kz, out):
+    nx, ny, nz = P0.shape
+    for i in range(nx):
+        for j in range(ny):
+            kept = keepx[i] and keepy[j]
+            for k in range(nz):
+                if not (kept and keepz[k]):
+                    out[i, j, k] = 0.0
+                    continue
+                q0, q1, q2 = P0[i, j, k], P1[i, j, k], P2[i, j, k]
+                sr = kx[i] * q0.real + ky[j] * q1.real + kz[k] * q2.real
+                si = kx[i] * q0.imag + ky[j] * q1.imag + kz[k] * q2.imag
+                out[i, j, k] = complex(si * scale, -sr * scale)
+
+
+_momentum_nb = _jit(_momentum_loop)
+_scalar_flux_nb = _jit(_scalar_flux_loop)
+
+
+def momentum_advection(P, mask, scale, keep, kvec, s, c, alpha, beta, out):
+    """Frame amplitudes of ``-div(u u)`` from the transformed products.
+
+    ``P`` is a sequence of five arrays: the unnormalised transforms of ``uu-ww, vv-ww, uv, uw, vw``;
+    ``N_i = -i k_j (u_i u_j)_k`` (the dropped ``ww`` trace is a gradient), dealiased,
+    then ``out[0] = e1 . N``, ``out[1] = e2 . N`` (solver/basis.py).
+    """
+    if use_numba():
+        _momentum_nb(P[0], P[1], P[2], P[3], P[4], scale, keep[0], keep[1], keep[2],
+                     kvec[0], kvec[1], kvec[2], s, c, alpha, beta, out)
+        return
+    kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
+                  kvec[2].reshape(1, 1, -1))
+    Nx = -1j * (kx * P[0] + ky * P[2] + kz * P[3]) * mask
+    Ny = -1j * (kx * P[2] + ky * P[1] + kz * P[4]) * mask
+    Nz = -1j * (kx * P[3] + ky * P[4]) * mask
+    project(np.stack([Nx, Ny, Nz]), s, c, alpha, beta, out)
+
+
+def scalar_advection(P, mask, scale, keep, kvec, out):
+    """``out = -div(u T)`` from the transforms ``P[0..2]`` of ``uT, vT, wT``, dealiased."""
+    if use_numba():
+        _scalar_flux_nb(P[0], P[1], P[2], scale, keep[0], keep[1], keep[2],
+                        kvec[0], kvec[1], kvec[2], out)
+        return
+    kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
+                  kvec[2].reshape(1, 1, -1))
+    out[...] = -1j * (kx * P[0] + ky * P[1] + kz * P[2]) * mask
+
+
+# ---------------------------------------------------------------- Cartesian -> frame
+def _project_loop(acc, s, c, alpha, beta, out):
+    nx, ny, nz = acc.shape[1:]
+    for i in range(nx):
+        for j in range(ny):
+            sij = s[i, j, 0]
+            cij = c[i, j, 0]
+            for k in range(nz):
+                xr = acc[0, i, j, k].real
+                xi = acc[0, i, j, k].imag
+                yr = acc[1, i, j, k].real
+                yi = acc[1, i, j, k].imag
+                be = beta[i, j, k]
+                al = alpha[i, j, k]
+                out[0, i, j, k] = complex(sij * xr - cij * yr, sij * xi - cij * yi)
+                out[1, i, j, k] = complex(be * (cij * xr + sij * yr) - al * acc[2, i, j, k].real,
+                                          be * (cij * xi + sij * yi) - al * acc[2, i, j, k].imag)
+
+
+_project_nb = _jit(_project_loop)
+
+
+def project(acc, s, c, alpha, beta, out):
+    """Frame amplitudes ``out[0] = e1 . acc``, ``out[1] = e2 . acc``."""
+    if use_numba():
+        _project_nb(acc, s, c, alpha, beta, out)
+        return
+    np.multiply(s, acc[0], out=out[0])
+    out[0] -= c * acc[1]
+    np.multiply(c, acc[0], out=out[1])
+    out[1] += s * acc[1]
+    out[1] *= beta
+    out[1] -= alpha * acc[2]
+
+
+# ---------------------------------------------------------------- physical products
+def _product_loop(f, g, h, out):
+    n = out.size
+    fo = f.reshape(n)
+    go = g.reshape(n)
+    oo = out.reshape(n)
+    if h.size == n:
+        ho = h.reshape(n)
+        for i in range(n):
+            oo[i] = fo[i] * go[i] - ho[i] * ho[i]
+    else:
+        for i in range(n):
+            oo[i] = fo[i] * go[i]
+
+
+_product_nb = _jit(_product_loop)
+_EMPTY = np.zeros(1)
+
+
+def product(f, g, out, minus_square_of=None):
+    """``out = f g`` or ``out = f g - h^2``."""
+    h = _EMPTY if minus_square_of is None else minus_square_of
+    if use_numba():
+        _product_nb(f, g, h, out)
+        return out
+    np.multiply(f, g, out=out)
+    if minus_square_of is not None:
+        out -= h * h
+    return out
+
+
+# ---------------------------------------------------------------- CFL and max speed
+def _speed_loop(u, v, w, idx, idy, idz):
+    n = u.size
+    uf = u.reshape(n)
+    vf = v.reshape(n)
+    wf = w.reshape(n)
+    rate = 0.0
+    speed2 = 0.0
+    for e in range(n):
+        a = uf[e]
+        b = vf[e]
+        c = wf[e]
+        r = abs(a) * idx + abs(b) * idy + abs(c) * idz
+        q = a * a + b * b + c * c
+        if r > rate or r != r:  # r != r keeps a NaN
+            rate = r
+        if q > speed2 or q != q:
+            speed2 = q
+    return rate, speed2
+
+
+_speed_nb = _jit(_speed_loop)
+
+
+def speed_limits(u, v, w, dx, work):
+    """``(max(|u|/dx + |v|/dy + |w|/dz), max(u^2+v^2+w^2))`` on this rank; NaN propagates."""
+    if use_numba():
+        return _speed_nb(u, v, w, 1.0 / dx[0], 1.0 / dx[1], 1.0 / dx[2])
+    np.abs(u, out=work)
+    work *= 1.0 / dx[0]
+    work += np.abs(v) * (1.0 / dx[1])
+    work += np.abs(w) * (1.0 / dx[2])
+    rate = float(work.max())
+    np.multiply(u, u, out=work)
+    work += v * v
+    work += w * w
+    return rate, float(work.max())
+
+
+# ---------------------------------------------------------------- low-storage stage update
+def _stage_scalar_loop(x, y, z, L, hb, hex_, him, haii, last):
+    # flat 1-D views: x, y, z are one field's (n,) complex arrays, L is (n,) real
+    for e in range(L.shape[0]):
+        lam = L[e]
+        yr = y[e].real
+        yi = y[e].imag
+        zr = z[e].real
+        zi = z[e].imag
+        lyr = lam * yr
+        lyi = lam * yi
+        xr = x[e].real + hb * (zr + lyr)
+        xi = x[e].imag + hb * (zi + lyi)
+        x[e] = complex(xr, xi)
+        if not last:
+            d = 1.0 / (1.0 - haii * lam)
+            y[e] = complex((xr + hex_ * zr + him * lyr) * d, (xi + hex_ * zi + him * lyi) * d)
+
+
+def _stage_pair_loop(x1, x2, y1, y2, z1, z2, L11, L12, L21, L22, hb, hex_, him, haii, last):
+    # written out in real arithmetic: Numba's complex operators do not vectorise
+    for e in range(L11.shape[0]):
+        l11 = L11[e]
+        l12 = L12[e]
+        l21 = L21[e]
+        l22 = L22[e]
+        ar = y1[e].real
+        ai = y1[e].imag
+        br = y2[e].real
+        bi = y2[e].imag
+        zar = z1[e].real
+        zai = z1[e].imag
+        zbr = z2[e].real
+        zbi = z2[e].imag
+        l1r = l11 * ar + l12 * br
+        l1i = l11 * ai + l12 * bi
+        l2r = l21 * ar + l22 * br
+        l2i = l21 * ai + l22 * bi
+        xar = x1[e].real + hb * (zar + l1r)
+        xai = x1[e].imag + hb * (zai + l1i)
+        xbr = x2[e].real + hb * (zbr + l2r)
+        xbi = x2[e].imag + hb * (zbi + l2i)
+        x1[e] = complex(xar, xai)
+        x2[e] = complex(xbr, xbi)
+        if not last:
+            r1r = xar + hex_ * zar + him * l1r
+            r1i = xai + hex_ * zai + him * l1i
+            r2r = xbr + hex_ * zbr + him * l2r
+            r2i = xbi + hex_ * zbi + him * l2i
+            m11 = 1.0 - haii * l11
+            m12 = -haii * l12
+            m21 = -haii * l21
+            m22 = 1.0 - haii * l22
+            inv = 1.0 / (m11 * m22 - m12 * m21)
+            y1[e] = complex((m22 * r1r - m12 * r2r) * inv, (m22 * r1i - m12 * r2i) * inv)
+            y2[e] = complex((m11 * r2r - m21 * r1r) * inv, (m11 * r2i - m21 * r1i) * inv)
+
+
+_stage_scalar_nb = _jit(_stage_scalar_loop)
+_stage_pair_nb = _jit(_stage_pair_loop)
+
+
+def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
+    """One fused stage of :class:`solver.imex.LowStorageIMEX` for a block operator.
+
+    With ``Ly = L y``: ``x += hb (z + Ly)``; unless ``last``,
+    ``y <- (I - haii L)^{-1} (x + hex z + him Ly)``.
+    """
+    nf = x.shape[0]
+    xf, yf, zf = x.reshape(nf, -1), y.reshape(nf, -1), z.reshape(nf, -1)
+    for block in operator.blocks:
+        if len(block) == 1:
+            f = block[0]
+            L = operator.full_entry(f, f).reshape(-1)
+            _stage_scalar_nb(xf[f], yf[f], zf[f], L, hb, hex_, him, haii, last)
+        else:
+            f, g = block
+            _stage_pair_nb(xf[f], xf[g], yf[f], yf[g], zf[f], zf[g],
+                           operator.full_entry(f, f).reshape(-1),
+                           operator.full_entry(f, g).reshape(-1),
+                           operator.full_entry(g, f).reshape(-1),
+                           operator.full_entry(g, g).reshape(-1),
+                           hb, hex_, him, haii, last)
