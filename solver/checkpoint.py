@@ -284,6 +284,11 @@ class CheckpointOutput(Output):
                 os.makedirs(self.directory, exist_ok=True)
                 if not os.access(self.directory, os.W_OK):
                     error = "no permission to write there"
+                elif not append:
+                    # a new run replaces the folder's run (shearmix run allows it only with
+                    # output.overwrite): older checkpoints would be taken for its latest
+                    for _, old in list_checkpoints(self.directory):
+                        os.remove(old)
             except OSError as exc:
                 error = exc.strerror or str(exc)
         error = agree(sim.comm, error)

@@ -121,15 +121,25 @@ def cmd_run(args) -> int:
             checked = check(path, case, comm)
         except ValueError as exc:
             return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
+        from solver.checkpoint import latest
         own = os.path.join(os.path.realpath(out_dir), "checkpoints")
-        if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own \
-                and os.path.exists(series):
-            msg = (f"{out_dir}: already holds a run ({SERIES_FILE}) and {path} is not one of its "
-                   "checkpoints; continue it in a new --output folder")
+        newest = latest(own)
+        if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own:
+            if os.path.exists(series) or newest:
+                msg = (f"{out_dir}: already holds a run and {path} is not one of its "
+                       "checkpoints; continue it in a new --output folder")
+                return _fail(msg) if rank0 else EXIT_BAD_INPUT
+        elif newest and os.path.realpath(newest) != os.path.realpath(path):
+            # restarting here from an older state would discard (and prune) what followed
+            msg = (f"{path}: older than the newest checkpoint {newest} of this run; continue "
+                   "from it in a new --output folder, or restart from the newest")
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
     else:
-        if os.path.exists(series) and not case.get("output.overwrite"):
-            msg = (f"{out_dir}: already holds a run ({SERIES_FILE}); continue it with --restart "
+        from solver.checkpoint import list_checkpoints
+        held = SERIES_FILE if os.path.exists(series) else (
+            "checkpoints" if list_checkpoints(os.path.join(out_dir, "checkpoints")) else None)
+        if held and not case.get("output.overwrite"):
+            msg = (f"{out_dir}: already holds a run ({held}); continue it with --restart "
                    "latest, choose another --output or set output.overwrite=true to replace it")
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
         if case.get("initial.kind") == "file" and not os.path.exists(case.get("initial.path")):

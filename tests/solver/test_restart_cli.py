@@ -122,6 +122,18 @@ def test_folder_rules_for_restart(cli, case_file, tmp_path):
     b_ckpt = str(tmp_path / "b" / "checkpoints" / _checkpoints(tmp_path / "b")[-1])
     r = cli("run", str(case_file), "-o", "a", "--restart", b_ckpt)
     assert r.returncode == 2 and "is not one of its checkpoints" in r.stderr
+    # an older checkpoint of the same folder would discard what followed it
+    oldest = str(tmp_path / "a" / "checkpoints" / _checkpoints(tmp_path / "a")[0])
+    r = cli("run", str(case_file), "-o", "a", "--restart", oldest)
+    assert r.returncode == 2 and f"{oldest}: older than the newest checkpoint" in r.stderr
+    # checkpoints alone mark a run too; overwrite replaces them all
+    os.remove(tmp_path / "a" / "timeseries.h5")
+    r = cli("run", str(case_file), "-o", "a")
+    assert r.returncode == 2 and "already holds a run (checkpoints)" in r.stderr
+    r = cli("run", str(case_file), "-o", "a", "--set", "output.overwrite=true",
+            "--set", "time.max_steps=3")
+    assert r.returncode == 0
+    assert max(_checkpoints(tmp_path / "a")) == "chk_000000003.h5"  # step-12 ones are gone
     # a run folder given to --restart stands for its newest checkpoint
     r = cli("run", str(case_file), "-o", "c", "--restart", str(tmp_path / "b"),
             "--set", "parameters.Re=90", "--set", "grid.Nz=12")
