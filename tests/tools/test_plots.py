@@ -117,3 +117,19 @@ def test_plot_command(tiny_run, tmp_path):
     r = subprocess.run([sys.executable, "-c", code, "plot", str(tmp_path / "absent")],
                        capture_output=True, text=True, env=env, timeout=120)
     assert r.returncode == 2 and r.stderr.count("\n") == 1 and "not a run folder" in r.stderr
+
+
+def test_slices_from_engine_snapshot_match_closed_form(make_case, tmp_path):
+    snapshots = pytest.importorskip("solver.snapshots")
+    case = make_case(grid={"Nx": 8, "Ny": 8, "Nz": 8}, box={"Lx": "2*pi"}, initial={"kind": "rest"})
+    sim = Simulation(case)
+    sim.add_mode(1, 2, 1, "poloidal", 0.5)  # kh = sqrt(5), |k| = sqrt(6)
+    os.makedirs(tmp_path / "snapshots")
+    snapshots.write_snapshot(sim, str(tmp_path / "snapshots"))
+    f = run_fields(str(tmp_path))
+    x, y, z = np.meshgrid(*(np.arange(8) * 2 * math.pi / 8,) * 3, indexing="ij")
+    phase = np.cos(x + 2 * y + z)
+    # e2 = (kx kz, ky kz, -kh^2) / (kh |k|)
+    assert np.abs(f["u"] - 0.5 / math.sqrt(30) * phase).max() < 1e-12
+    assert np.abs(f["w"] + 0.5 * 5 / math.sqrt(30) * phase).max() < 1e-12
+    assert os.path.basename(f["source"]).startswith("snap_")
