@@ -213,3 +213,32 @@ def test_write_failure_is_reported_with_file_and_reason(sim, tmp_path):
         write_checkpoint(sim, str(target))  # a folder that is a file
     assert str(err.value).startswith(str(target / "chk_"))
     assert "could not be written (" in str(err.value) and "\n" not in str(err.value)
+
+
+def test_wall_clock_budget_stops_with_a_checkpoint_and_code_4(make_case, tmp_path):
+    case = make_case(grid={"Nx": 16, "Ny": 8, "Nz": 8},
+                     time={"t_end": None, "max_steps": 100000, "wall_hours": 0.5 / 3600})
+    s = Simulation(case)
+    lines = []
+    assert s.run(output=str(tmp_path), log=lines.append) == 4
+    assert 0 < s.step_count < 100000
+    assert any("wall-clock budget of" in ln for ln in lines)
+    ((step, path),) = list_checkpoints(str(tmp_path / "checkpoints"))
+    assert step == s.step_count and verify(path)["t"] == s.t
+
+
+def test_wall_clock_cadence_writes_when_minutes_have_passed(make_case, tmp_path, monkeypatch):
+    clock = {"now": 1000.0}
+    monkeypatch.setattr(ck.time, "monotonic", lambda: clock["now"])  # a clock we drive
+    case = make_case(grid={"Nx": 16, "Ny": 8, "Nz": 8}, time={"t_end": None, "max_steps": 6},
+                     output={"checkpoint_minutes": 1.0, "checkpoint_keep": 10})
+    s = Simulation(case)
+    real_step = s._step_with
+
+    def step(*args):  # every step takes 40 s of wall clock
+        clock["now"] += 40.0
+        return real_step(*args)
+    s._step_with = step
+    assert s.run(output=str(tmp_path), log=lambda m: None) == 0
+    # 80 s >= 60 s at step 2, 80 s after that at step 4, and the final one at step 6
+    assert [n for n, _ in list_checkpoints(str(tmp_path / "checkpoints"))] == [2, 4, 6]
