@@ -11,6 +11,8 @@ import math
 
 import numpy as np
 
+from . import kernels
+
 #: quantities recorded every ``output.diagnostics_every`` steps, in order
 SERIES_NAMES = ("t", "step", "dt", "K", "Kx", "Ky", "Kz", "I", "eps", "J", "chi", "eta",
                 "u_rms", "v_rms", "w_rms", "T_rms", "b_rms", "umax", "budget_residual",
@@ -22,28 +24,8 @@ def compute(sim) -> dict:
     g, basis, comm, case = sim.grid, sim.basis, sim.comm, sim.case
     y = sim.state
     a, p = y[0], y[1]
-    w = g.half_weight
-    sums = {}
-    e_h = np.zeros(g.nzc)
-    comp = np.empty(g.spectral_shape, complex)
-    for i, name in enumerate(("Kx", "Ky", "Kz")):
-        basis.to_cartesian(a, p, i, comp)
-        power = comp.real ** 2 + comp.imag ** 2
-        sums[name] = 0.5 * g.volume_sum(power)
-        if i < 2:
-            e_h += 0.5 * (w * power).sum(axis=(0, 1))
-    ap2 = a.real ** 2 + a.imag ** 2 + p.real ** 2 + p.imag ** 2
-    sums["grad2"] = g.volume_sum(g.k2 * ap2)
-    k2safe = np.where(g.k2 == 0, 1.0, g.k2)
-    w2 = (basis.alpha ** 2) * (p.real ** 2 + p.imag ** 2)  # |w_k|^2
-    if "T" in sim.fields:
-        T = y[2]
-        sums["wT"] = g.volume_sum(-(basis.alpha * (p * np.conj(T))).real)
-        sums["T2"] = g.volume_sum(T.real ** 2 + T.imag ** 2)
-        sums["gradT2"] = g.volume_sum(g.k2 * (T.real ** 2 + T.imag ** 2))
-    else:
-        sums["w_ilap_w"] = -g.volume_sum(w2 / k2safe)        # <w lap^-1 w>
-        sums["b2"] = g.volume_sum(w2 / k2safe ** 2)           # <(lap^-1 w)^2>
+    local, e_h = kernels.spectral_sums(a, p, y[2] if "T" in sim.fields else None, basis, g)
+    sums = dict(zip(kernels.SUM_NAMES, local))
     inj = 0.0
     for idx, fa, fp in sim.tendency.forcing:
         inj += (fa * np.conj(a[idx]) + fp * np.conj(p[idx])).real  # kz = 0: weight 1

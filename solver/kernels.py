@@ -298,6 +298,88 @@ def product(f, g, out, minus_square_of=None):
     return out
 
 
+# ---------------------------------------------------------------- diagnostics sums
+#: order of the sums returned by :func:`spectral_sums`
+SUM_NAMES = ("Kx", "Ky", "Kz", "grad2", "wT", "T2", "gradT2", "w_ilap_w", "b2")
+
+
+def _sums_loop(a, p, T, has_T, s, c, alpha, beta, kx, ky, kz, sums, e_h):
+    nx, ny, nz = a.shape
+    for i in range(nx):
+        for j in range(ny):
+            sij = s[i, j, 0]
+            cij = c[i, j, 0]
+            kh2 = kx[i] * kx[i] + ky[j] * ky[j]
+            for k in range(nz):
+                w = 2.0 if k > 0 else 1.0
+                ar, ai = a[i, j, k].real, a[i, j, k].imag
+                pr, pi = p[i, j, k].real, p[i, j, k].imag
+                be = beta[i, j, k]
+                al = alpha[i, j, k]
+                uxr, uxi = sij * ar + cij * be * pr, sij * ai + cij * be * pi
+                uyr, uyi = sij * be * pr - cij * ar, sij * be * pi - cij * ai
+                ux2 = uxr * uxr + uxi * uxi
+                uy2 = uyr * uyr + uyi * uyi
+                p2 = pr * pr + pi * pi
+                uz2 = al * al * p2
+                k2 = kh2 + kz[k] * kz[k]
+                sums[0] += 0.5 * w * ux2
+                sums[1] += 0.5 * w * uy2
+                sums[2] += 0.5 * w * uz2
+                sums[3] += w * k2 * (ar * ar + ai * ai + p2)
+                e_h[k] += 0.5 * w * (ux2 + uy2)
+                if has_T:
+                    tr, ti = T[i, j, k].real, T[i, j, k].imag
+                    t2 = tr * tr + ti * ti
+                    sums[4] += -w * al * (pr * tr + pi * ti)
+                    sums[5] += w * t2
+                    sums[6] += w * k2 * t2
+                elif k2 > 0.0:
+                    sums[7] -= w * uz2 / k2
+                    sums[8] += w * uz2 / (k2 * k2)
+
+
+_sums_nb = _jit(_sums_loop)
+
+
+def spectral_sums(a, p, T, basis, grid):
+    """Local half-spectrum sums behind the diagnostics, and ``E_h(kz)``.
+
+    Returns ``(sums, e_h)`` with ``sums`` ordered as :data:`SUM_NAMES`:
+    ``<u^2>/2`` per component, ``<|grad u|^2>``, ``<w T>``, ``<T^2>``, ``<|grad T|^2>``,
+    ``<w lap^-1 w>`` and ``<(lap^-1 w)^2>`` (the last two without T), each by
+    Parseval over this rank's modes, and the horizontal kinetic energy per kz index.
+    """
+    sums = np.zeros(len(SUM_NAMES))
+    e_h = np.zeros(grid.nzc)
+    has_T = T is not None
+    if use_numba():
+        _sums_nb(a, p, a if T is None else T, has_T, basis.s, basis.c, basis.alpha,
+                 basis.beta, grid.kx.ravel(), grid.ky.ravel(), grid.kz.ravel(), sums, e_h)
+        return sums, e_h
+    w = grid.half_weight
+    for i in range(3):
+        comp = np.empty(grid.spectral_shape, complex)
+        cartesian(a, p, basis.s, basis.c, basis.alpha, basis.beta, i, comp)
+        power = comp.real ** 2 + comp.imag ** 2
+        sums[i] = 0.5 * grid.volume_sum(power)
+        if i < 2:
+            e_h += 0.5 * (w * power).sum(axis=(0, 1))
+    ap2 = a.real ** 2 + a.imag ** 2 + p.real ** 2 + p.imag ** 2
+    sums[3] = grid.volume_sum(grid.k2 * ap2)
+    w2 = basis.alpha ** 2 * (p.real ** 2 + p.imag ** 2)
+    if has_T:
+        t2 = T.real ** 2 + T.imag ** 2
+        sums[4] = grid.volume_sum(-(basis.alpha * (p * np.conj(T))).real)
+        sums[5] = grid.volume_sum(t2)
+        sums[6] = grid.volume_sum(grid.k2 * t2)
+    else:
+        k2safe = np.where(grid.k2 == 0, 1.0, grid.k2)
+        sums[7] = -grid.volume_sum(w2 / k2safe)
+        sums[8] = grid.volume_sum(w2 / k2safe ** 2)
+    return sums, e_h
+
+
 # ---------------------------------------------------------------- CFL and max speed
 def _speed_loop(u, v, w, idx, idy, idz):
     n = u.size
@@ -420,3 +502,32 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
                            operator.full_entry(g, f).reshape(-1),
                            operator.full_entry(g, g).reshape(-1),
                            hb, hex_, him, haii, last)
+
+
+def warm_up() -> None:
+    """Load (or compile) every kernel on tiny arrays, so the first step costs a normal step."""
+    if not use_numba():
+        return
+    z = np.zeros((2, 2, 2), dtype=np.complex128)
+    r = np.ones((2, 2, 2))
+    one = np.ones((2, 2, 1))
+    keep = np.ones(2, dtype=np.bool_)
+    kv = np.ones(2)
+    stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
+    stack3 = np.zeros((3, 2, 2, 2), dtype=np.complex128)
+    _cartesian_nb(z, z, one, one, r, r, 0, z.copy())
+    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, r, r, stack2)
+    _scalar_flux_nb(z, z, z, 1.0, keep, keep, keep, kv, kv, kv, z.copy())
+    _project_nb(stack3, one, one, r, r, stack2)
+    _product_nb(r, r, r, r.copy())
+    _product_nb(r, r, _EMPTY, r.copy())
+    _speed_nb(r, r, r, 1.0, 1.0, 1.0)
+    for has_T in (False, True):
+        _sums_nb(z, z, z, has_T, one, one, r, r, kv, kv, kv, np.zeros(len(SUM_NAMES)),
+                 np.zeros(2))
+    f = z.reshape(-1)
+    L = r.reshape(-1)
+    for last in (False, True):
+        _stage_scalar_nb(f, f.copy(), f.copy(), L, 0.1, 0.1, 0.1, 0.1, last)
+        _stage_pair_nb(f, f.copy(), f.copy(), f.copy(), f.copy(), f.copy(), L, L, L, L,
+                       0.1, 0.1, 0.1, 0.1, last)

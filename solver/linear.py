@@ -50,8 +50,11 @@ class LinearOperator:
         key = ("full", r, c)
         if key not in self._full:
             shape = np.broadcast_shapes(*(np.shape(v) for v in self.entries.values()))
-            self._full[key] = np.ascontiguousarray(
-                np.broadcast_to(self.entry(r, c), shape), dtype=np.float64)
+            arr = np.asarray(self.entry(r, c), dtype=np.float64)
+            if not (arr.shape == shape and arr.flags.c_contiguous and arr.flags.writeable):
+                # a writable copy: compiled kernels see one array type, and no read-only view
+                arr = np.array(np.broadcast_to(arr, shape), dtype=np.float64, order="C")
+            self._full[key] = arr
         return self._full[key]
 
     def apply(self, y: np.ndarray) -> np.ndarray:

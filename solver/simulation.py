@@ -21,6 +21,7 @@ import numpy as np
 import pyfftw
 
 from . import diagnostics as diag
+from . import kernels
 from .basis import CrayaHerring
 from .case import Case
 from .grid import Grid
@@ -87,6 +88,7 @@ class Simulation:
         self._n0 = getattr(self.stepper, "tendency", None)
         if self._n0 is None:
             self._n0 = np.empty_like(self.state)
+        kernels.warm_up()
         self.t = 0.0
         self.step_count = 0
         self.dt = float(case.get("time.dt"))

@@ -30,3 +30,21 @@ def test_numba_and_numpy_steps_agree(make_case, model, params):
     ref = states["numpy"]
     assert np.abs(ref).max() > 0.05
     assert np.abs(states["numba"] - ref).max() < 1e-13 * np.abs(ref).max()
+
+
+@pytest.mark.parametrize("model,params", [("lowpe", {"Re": 80.0, "BPe": 2.0, "Pe": 0.1}),
+                                          ("boussinesq", {"Re": 80.0, "B": 2.0, "Pr": 0.5})])
+def test_numba_and_numpy_diagnostics_agree(make_case, model, params):
+    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 12, "Nz": 8},
+                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
+    sim = Simulation(case)
+    sim.add_mode(1, 1, 1, "poloidal", 0.3)
+    got = {}
+    for mode in ("numba", "numpy"):
+        kernels.set_backend(mode)
+        got[mode] = sim.diagnostics()
+    kernels.set_backend(None)
+    for key, ref in got["numpy"].items():
+        if isinstance(ref, float) and np.isfinite(ref):
+            assert got["numba"][key] == pytest.approx(ref, rel=1e-12, abs=1e-300), key
+    assert got["numpy"]["J"] != 0 and got["numpy"]["Kz"] > 0
