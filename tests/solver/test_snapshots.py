@@ -123,6 +123,18 @@ def test_run_cadence_and_restart_continue_without_repeats(make_case, tmp_path):
     apply(again, ckpt, check(ckpt, case, SerialComm()))
     assert again.run(output=str(tmp_path), append=True, log=lambda m: None) == 0
     assert steps() == [0, 2, 4, 6, 8, 10, 12]
+    # the collection of all of them, for playing the run as a time series
+    root = ET.parse(tmp_path / "snapshots" / "snapshots.xmf").getroot()
+    (series,) = root.findall("./Domain/Grid")
+    assert (series.get("GridType"), series.get("CollectionType")) == ("Collection", "Temporal")
+    grids = series.findall("Grid")
+    times = [float(g.find("Time").get("Value")) for g in grids]
+    assert times == pytest.approx([0.0, 0.2, 0.4, 0.6, 0.8, 1.0, 1.2], abs=1e-12)
+    for g in grids:
+        for item in g.findall("Attribute/DataItem"):
+            fname, dset = item.text.strip().split(":")
+            with h5py.File(tmp_path / "snapshots" / fname) as fh:
+                assert fh[dset].shape == tuple(int(n) for n in item.get("Dimensions").split())
 
 
 @pytest.mark.mpi
@@ -146,3 +158,22 @@ def test_stride_across_two_ranks(tmp_path, make_case):
         for name in ("u", "v", "w", "b"):
             assert fh[name].shape == (3, 6, 6)
             assert np.abs(fh[name][()] - ref[name]).max() < 1e-12, name
+
+
+def test_failing_snapshot_write_stops_the_run_with_code_5(make_case, tmp_path, monkeypatch):
+    import errno
+    from solver import snapshots
+    from solver.checkpoint import list_checkpoints
+
+    def quota(*args, **kwargs):
+        raise OSError(errno.EDQUOT, os.strerror(errno.EDQUOT))
+    case = make_case(grid={"Nx": 16, "Ny": 8, "Nz": 8}, time={"t_end": None, "max_steps": 6},
+                     output={"snapshot_every": 0.05})
+    sim = Simulation(case)
+    monkeypatch.setattr(snapshots, "write_xdmf", quota)
+    lines = []
+    assert sim.run(output=str(tmp_path), log=lines.append) == 5
+    assert sim.step_count == 0
+    assert any("snap_000000000.xmf: could not be written (Disk quota exceeded" in ln
+               for ln in lines), lines
+    assert list_checkpoints(str(tmp_path / "checkpoints")) == []  # nothing written after it
