@@ -70,7 +70,8 @@ def write_checkpoint(sim, directory: str) -> str:
     g = sim.grid
     nx, ny, _ = g.shape
     path = checkpoint_path(directory, sim.step_count)
-    attrs = common_attributes(sim, "checkpoint", sim.fields)
+    # one set of values for all ranks (the mpio driver writes attributes collectively)
+    attrs = sim.comm.bcast(common_attributes(sim, "checkpoint", sim.fields))
 
     def create(fh):
         for key, value in attrs.items():

@@ -87,7 +87,8 @@ def write_snapshot(sim, directory: str, single: bool = False, stride: int = 1) -
     path = os.path.join(directory, f"snap_{sim.step_count:09d}.h5")
     shape = strided_shape(g.shape, stride)
     dtype = "<f4" if single else "<f8"
-    attrs = common_attributes(sim, "snapshot", names)
+    # one set of values for all ranks (the mpio driver writes attributes collectively)
+    attrs = sim.comm.bcast(common_attributes(sim, "snapshot", names))
     attrs.update(stride=int(stride), axes="z,y,x", precision="single" if single else "double")
     fields = local_fields(sim)  # collective transforms, before the rank-ordered writes
     xs, x0, x1 = _x_part(g, stride)
