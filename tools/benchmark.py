@@ -27,7 +27,7 @@ import sys
 import time
 
 
-def _case(model: str, n: int, steps: int):
+def _case(model: str, n: int, steps: int, threads: int = 1):
     from solver.case import case_from_dict
     params = {"lowpe": {"Re": 400.0, "BPe": 1.0},
               "boussinesq": {"Re": 400.0, "B": 1.0, "Pr": 1.0}}[model]
@@ -37,17 +37,22 @@ def _case(model: str, n: int, steps: int):
         "box": {"Lx": "4*pi", "Ly": "2*pi", "Lz": "2*pi"},
         "time": {"max_steps": steps, "dt": 1e-3, "adaptive": False},
         "initial": {"kind": "laminar_noise", "amplitude": 0.1},
-        "compute": {"fftw_effort": "measure"},
+        "compute": {"fftw_effort": "measure", "threads": threads},
     })
 
 
-def worker(model: str, n: int, steps: int) -> dict | None:
-    """Measure inside one MPI job; returns the record on rank 0."""
+def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0) -> dict | None:
+    """Measure inside one MPI job; returns the record on rank 0.
+
+    ``diag_every > 0`` computes the diagnostics every that many steps inside the
+    timed step, as a run writing its time series does.
+    """
+    from solver import diagnostics
     from solver.parallel import world
     from solver.simulation import Simulation
     comm = world()
     t0 = time.perf_counter()
-    sim = Simulation(_case(model, n, steps), comm)
+    sim = Simulation(_case(model, n, steps, threads), comm)
     setup = comm.max(time.perf_counter() - t0)
     t0 = time.perf_counter()
     sim.advance()
@@ -59,6 +64,8 @@ def worker(model: str, n: int, steps: int) -> dict | None:
         comm.barrier()
         t0, c0 = time.perf_counter(), time.process_time()
         sim.advance()
+        if diag_every and sim.step_count % diag_every == 0:
+            diagnostics.compute(sim)
         cpu.append(comm.max(time.process_time() - c0))
         times.append(comm.max(time.perf_counter() - t0))
     n_fwd = (sim.fft.count_forward - fwd0) // steps
@@ -84,7 +91,8 @@ def worker(model: str, n: int, steps: int) -> dict | None:
     fl = statistics.median(floor)
     step_cpu = statistics.median(cpu)
     fl_cpu = statistics.median(floor_cpu)
-    return {"model": model, "n": n, "ranks": comm.size, "step_seconds": step,
+    return {"model": model, "n": n, "ranks": comm.size, "threads": threads,
+            "diagnostics_every": diag_every, "step_seconds": step,
             "floor_seconds": fl, "ratio": step / fl, "step_cpu_seconds": step_cpu,
             "floor_cpu_seconds": fl_cpu, "ratio_cpu": step_cpu / fl_cpu,
             "transforms_per_step": n_fwd + n_inv,
@@ -97,10 +105,11 @@ def _mpiexec() -> str:
     return here if os.path.exists(here) else "mpiexec"
 
 
-def launch(model: str, n: int, ranks: int, steps: int) -> dict:
-    env = dict(os.environ, OMP_NUM_THREADS="1")
+def launch(model: str, n: int, ranks: int, steps: int, threads: int = 1,
+           diag_every: int = 0) -> dict:
+    env = dict(os.environ, OMP_NUM_THREADS=str(threads))
     cmd = [_mpiexec(), "-n", str(ranks), sys.executable, "-m", "tools.benchmark",
-           "--worker", model, str(n), str(steps)]
+           "--worker", model, str(n), str(steps), str(threads), str(diag_every)]
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if res.returncode != 0:
         raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks failed:\n"
@@ -129,10 +138,15 @@ def main(argv=None) -> int:
                     choices=["lowpe", "boussinesq"])
     ap.add_argument("--steps", type=int, default=15, help="timed steps per case (median)")
     ap.add_argument("--json", metavar="FILE", help="also write the records as JSON")
-    ap.add_argument("--worker", nargs=3, help=argparse.SUPPRESS)
+    ap.add_argument("--diagnostics", action="store_true",
+                    help="also compare diagnostics every step with every 100 steps (largest size)")
+    ap.add_argument("--threads", action="store_true",
+                    help="also compare 1 rank x 2 FFTW threads with 2 ranks x 1 thread (largest size)")
+    ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.worker:
-        rec = worker(args.worker[0], int(args.worker[1]), int(args.worker[2]))
+        w = args.worker
+        rec = worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]))
         if rec is not None:
             print(json.dumps(rec))
         return 0
@@ -154,10 +168,32 @@ def main(argv=None) -> int:
                       f"{r['transforms_per_step']:5d} {r['first_step_seconds']:8.3f} "
                       f"{r['bytes_per_point']:9.0f} {r['bytes_per_point_net']:9.0f}",
                       flush=True)
+    extras = {}
+    big = max(args.sizes)
+    if args.diagnostics:
+        print(f"\ndiagnostics cost at {big}^3, 1 rank (CPU-time medians):")
+        for model in args.models:
+            every = launch(model, big, 1, args.steps, diag_every=1)
+            rare = launch(model, big, 1, args.steps, diag_every=100)
+            ratio = every["step_cpu_seconds"] / rare["step_cpu_seconds"]
+            extras[f"diagnostics_{model}"] = {"every_step": every, "every_100": rare,
+                                              "slowdown": ratio}
+            print(f"  {model:11s} every step {every['step_cpu_seconds']:.4f} s, every 100 "
+                  f"{rare['step_cpu_seconds']:.4f} s: {100 * (ratio - 1):+.1f}%")
+    if args.threads:
+        print(f"\nthreads against ranks at {big}^3 on 2 cores (wall-clock medians):")
+        for model in args.models:
+            thr = launch(model, big, 1, args.steps, threads=2)
+            rk = launch(model, big, 2, args.steps)
+            one = launch(model, big, 1, args.steps)
+            extras[f"threads_{model}"] = {"1x1": one, "1x2": thr, "2x1": rk}
+            print(f"  {model:11s} 1 rank x 1 thread {one['step_seconds']:.4f} s, "
+                  f"1 rank x 2 threads {thr['step_seconds']:.4f} s, "
+                  f"2 ranks x 1 thread {rk['step_seconds']:.4f} s")
     if args.json:
         with open(args.json, "w") as fh:
-            json.dump({"version": __version__, "machine": machine(), "records": records},
-                      fh, indent=1)
+            json.dump({"version": __version__, "machine": machine(), "records": records,
+                       "extras": extras}, fh, indent=1)
     return 0
 
 
