@@ -21,7 +21,7 @@ from typing import Any, Callable
 import yaml
 
 MODELS = ("boussinesq", "lowpe")
-INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file")
+INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")
 MODE_COMPONENTS = ("vortical", "poloidal", "T")
 FFTW_EFFORTS = ("estimate", "measure", "patient")
 
@@ -110,7 +110,8 @@ SCHEMA: dict[str, Key] = {
     "initial.seed": Key("int", 1, "random seed of the noise", lower=0),
     "initial.noise_modes": Key("int", 4, "noise fills integer wave indices |n| <= this",
                                lower=1),
-    "initial.path": Key("str", None, "perturbation file (kind: file)"),
+    "initial.path": Key("str", None, "perturbation file (kind: file, or eigenmode for a file "
+                        "written by 'shearmix stability mode')"),
     "initial.mode.nx": Key("int", 1, "x wave index of the mode (kind: mode)"),
     "initial.mode.ny": Key("int", 0, "y wave index of the mode"),
     "initial.mode.nz": Key("int", 0, "z wave index of the mode"),
@@ -492,9 +493,9 @@ def validate(data: dict, source: str = "<case>") -> Case:
     if values["time.dt_min"] >= values["time.dt_max"]:
         raise CaseError(f"{source}: time.dt_min: must be below time.dt_max "
                         f"({values['time.dt_max']:g}), got {values['time.dt_min']:g}")
-    if values["initial.kind"] == "file" and not values["initial.path"]:
-        raise CaseError(f"{source}: initial.path: missing; initial.kind 'file' needs "
-                        "the perturbation file's path")
+    if values["initial.kind"] in ("file", "eigenmode") and not values["initial.path"]:
+        raise CaseError(f"{source}: initial.path: missing; initial.kind "
+                        f"'{values['initial.kind']}' needs the perturbation file's path")
 
     raw: dict = {}
     for key, value in values.items():

@@ -64,6 +64,8 @@ def apply_initial(sim) -> None:
     kind = case.get("initial.kind")
     amp = float(case.get("initial.amplitude"))
     g = sim.grid
+    if kind == "eigenmode":  # a perturbation file made by the stability tool
+        kind = "file"
     u = laminar_physical(sim) if kind in ("laminar_noise", "laminar", "mode", "file") else None
     if kind == "mode":
         sim.set_physical(u, None, None, None)

@@ -142,7 +142,8 @@ def cmd_run(args) -> int:
             msg = (f"{out_dir}: already holds a run ({held}); continue it with --restart "
                    "latest, choose another --output or set output.overwrite=true to replace it")
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
-        if case.get("initial.kind") == "file" and not os.path.exists(case.get("initial.path")):
+        if case.get("initial.kind") in ("file", "eigenmode") and \
+            not os.path.exists(case.get("initial.path")):
             msg = f"{case.get('initial.path')}: initial.path: no such perturbation file"
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
     if rank0:

@@ -26,7 +26,7 @@ def _case(model, params, path, Ly="2*pi", Ny=32):
         "box": {"Lx": "4*pi", "Ly": Ly, "Lz": "2*pi"},
         "grid": {"Nx": 8, "Ny": Ny, "Nz": 8},
         "time": {"dt": 0.02, "adaptive": False, "t_end": 100.0},
-        "initial": {"kind": "file", "path": str(path), "amplitude": 1e-6},
+        "initial": {"kind": "eigenmode", "path": str(path), "amplitude": 1e-6},
         "compute": {"wisdom": "", "fftw_effort": "estimate"},
     })
 

@@ -515,7 +515,7 @@ def run_mode(args):
           f"(kx={kx:.6g}, kz={kz:.6g}, ky0={ky0:.6g}): {_cplx(complex(meta['sigma_real'], meta['sigma_imag']))}")
     print(f"energy share left out by the grid: {meta['dropped_energy']:.2e}")
     print(f"wrote {args.output}; start a run from it with\n"
-          f"  initial: {{kind: file, path: {args.output}, amplitude: 1.0e-4}}")
+          f"  initial: {{kind: eigenmode, path: {args.output}, amplitude: 1.0e-4}}")
     return 0
 
 

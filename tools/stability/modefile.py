@@ -1,4 +1,4 @@
-"""An eigenmode as a perturbation file for the engine (``initial: {kind: file}``).
+"""An eigenmode as a perturbation file for the engine (``initial: {kind: eigenmode}``, or ``kind: file``).
 
 File layout (read by ``solver.initial.read_perturbation``): HDF5 with float64
 datasets ``u``, ``v``, ``w`` (and ``T`` for the boussinesq model) of shape
