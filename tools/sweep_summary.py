@@ -22,6 +22,7 @@ import os
 import numpy as np
 
 from .fits import EXPECTED_EXPONENTS, compare_exponent, fit_power_law
+from .spectral_tail import tail_ratio, tail_warning
 from .summary import SERIES_FILE, SummaryOptions, summarize_run, write_csv
 from .sweep_status import sweep_status
 
@@ -94,8 +95,9 @@ def write_fits(fits, path, selection=""):
         w = csv.DictWriter(fh, fieldnames=FIT_COLUMNS)
         w.writeheader()
         for f in fits:
-            w.writerow({k: ("" if f.get(k) is None else f.get(k, selection if k == "selection" else ""))
-                        for k in FIT_COLUMNS})
+            row = {k: f.get(k) for k in FIT_COLUMNS}
+            row["selection"] = f.get("selection", selection)
+            w.writerow({k: ("" if v is None else v) for k, v in row.items()})
 
 
 def _fmt(v, err=None):
@@ -129,6 +131,11 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         except (ValueError, OSError) as exc:
             skipped[m.name] = str(exc)
             continue
+        # the spectral tail (tools/spectral_tail.py) over the same window
+        row["tail_ratio"] = tail_ratio(run_dir, row["t_start"])
+        warn = tail_warning(row["tail_ratio"])
+        if warn:
+            row["warnings"].append(warn)
         rows.append({"member": m.name, "state": states.get(m.name, ""), **row})
     files = []
     log(f"sweep {sweep.name}: {len(rows)} of {len(sweep.members)} members summarised")

@@ -190,8 +190,9 @@ def test_failed_member_reports_its_reason(tmp_path):
 
 
 # ------------------------------------------------------------------ fits across a sweep
-def test_fit_rows_recovers_exact_power_law_and_selects():
-    from tools.sweep_summary import fit_rows
+def test_fit_rows_recovers_exact_power_law_and_selects(tmp_path):
+    import csv
+    from tools.sweep_summary import fit_rows, write_fits
     rng = np.random.default_rng(4)
     bpe = np.geomspace(0.1, 100, 7)
     rows = []
@@ -202,6 +203,10 @@ def test_fit_rows_recovers_exact_power_law_and_selects():
                      "D_flux": float("nan"), "D_estimate": 1.0,
                      "regime": "stratified_turbulence" if i < 5 else "viscous_layers"})
     fits = {f["y"]: f for f in fit_rows(rows)}
+    out = tmp_path / "fits.csv"
+    write_fits(list(fits.values()), str(out), "all runs")
+    table = list(csv.DictReader(open(out)))
+    assert [r["selection"] for r in table] == ["all runs"] * 4 and table[0]["y"] == "Lz_turb"
     lz = fits["Lz_turb"]
     assert lz["weighted"] and lz["p_lo"] < -1 / 3 < lz["p_hi"] and lz["consistent"]
     w = fits["w_rms"]  # exact data, no error bars: unweighted, exact exponent
