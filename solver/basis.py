@@ -25,23 +25,39 @@ from .grid import Grid
 
 
 class CrayaHerring:
-    """Frame coefficients on one rank's spectral slab."""
+    """Frame coefficients on one rank's spectral slab.
+
+    Stored: ``s``, ``c`` and ``kh`` (shape ``(Nx, Ny/P, 1)``) and ``kz`` (1-D). The
+    3-D ``alpha``, ``beta`` and ``nonzero`` are computed when asked for (the
+    compiled kernels evaluate them per mode), so the frame costs no full-size memory.
+    """
 
     def __init__(self, grid: Grid):
-        kx, ky, kz = grid.kx, grid.ky, grid.kz
-        kh2_2d = kx ** 2 + ky ** 2  # shape (Nx, nyl, 1)
-        kh_2d = np.sqrt(kh2_2d)
+        kx, ky = grid.kx, grid.ky
+        kh_2d = np.sqrt(kx ** 2 + ky ** 2)  # shape (Nx, nyl, 1)
         flat = kh_2d == 0
         safe = np.where(flat, 1.0, kh_2d)
-        self.s = np.where(flat, 1.0, ky / safe)
-        self.c = np.where(flat, 0.0, kx / safe)
-        k = np.sqrt(grid.k2)
-        zero = k == 0
-        ksafe = np.where(zero, 1.0, k)
-        self.alpha = np.ascontiguousarray(np.where(zero, 0.0, kh_2d / ksafe))
-        self.beta = np.ascontiguousarray(np.where(zero, 1.0, kz / ksafe))
-        #: 1 everywhere but the mean mode, which the frame cannot carry
-        self.nonzero = ~zero
+        self.s = np.ascontiguousarray(np.where(flat, 1.0, ky / safe))
+        self.c = np.ascontiguousarray(np.where(flat, 0.0, kx / safe))
+        self.kh = np.ascontiguousarray(kh_2d)
+        self.kz = np.ascontiguousarray(grid.kz.ravel())
+
+    @property
+    def alpha(self) -> np.ndarray:
+        """``kh/|k|`` (0 at k = 0)."""
+        k = np.sqrt(self.kh ** 2 + self.kz ** 2)
+        return np.where(k == 0, 0.0, self.kh / np.where(k == 0, 1.0, k))
+
+    @property
+    def beta(self) -> np.ndarray:
+        """``kz/|k|`` (1 at k = 0)."""
+        k = np.sqrt(self.kh ** 2 + self.kz ** 2)
+        return np.where(k == 0, 1.0, self.kz / np.where(k == 0, 1.0, k))
+
+    @property
+    def nonzero(self) -> np.ndarray:
+        """True everywhere but the mean mode, which the frame cannot carry."""
+        return (self.kh ** 2 + self.kz ** 2) != 0
 
     def to_cartesian(self, a, p, component: int, out: np.ndarray) -> np.ndarray:
         """Cartesian velocity component (0, 1, 2) of ``a e1 + p e2`` into ``out``."""

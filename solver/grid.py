@@ -78,9 +78,13 @@ class Grid:
         #: largest resolved wavenumber after dealiasing (smallest over directions)
         self.kmax = min(2 * np.pi / L * c for L, c in zip(self.lengths, self.cutoff))
 
-        self.k2 = np.ascontiguousarray(self.kx ** 2 + self.ky ** 2 + self.kz ** 2)
         # half-space weights: modes with nz > 0 stand for themselves and their conjugates
         self.half_weight = np.where(self.nz_index > 0, 2.0, 1.0)
+
+    @property
+    def k2(self) -> np.ndarray:
+        """``|k|^2`` over the slab (computed when asked for: the kernels need no copy)."""
+        return self.kx ** 2 + self.ky ** 2 + self.kz ** 2
 
     # ------------------------------------------------------------ helpers
     def physical_coordinates(self):

@@ -170,7 +170,7 @@ class LowStorageIMEX:
         s = tab.stages
         y, z = self.stage, self.tendency
         np.copyto(y, x)
-        if kernels.use_numba() and hasattr(self.operator, "full_entry"):
+        if kernels.use_numba() and hasattr(self.operator, "flat_entry"):
             for i in range(s):
                 if i == 0 and n0 is not None:
                     if n0 is not z:

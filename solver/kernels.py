@@ -44,112 +44,66 @@ def _jit(fn):
         return None
     return numba.njit(cache=True, fastmath=False, nogil=True)(fn)
 
+# ---------------------------------------------------------------- frame geometry
+def _frame(kh, kz):
+    """``(alpha, beta) = (kh/|k|, kz/|k|)`` (solver/basis.py); ``(0, 0)`` at k = 0.
+
+    Branch free, so that loops calling it vectorise; the k = 0 mode carries no
+    velocity, so its beta is never used.
+    """
+    inv = 1.0 / np.sqrt(max(kh * kh + kz * kz, 1e-300))
+    return kh * inv, kz * inv
+
+
+_frame_nb = _jit(_frame)
+
 
 # ---------------------------------------------------------------- frame -> Cartesian
-def _cartesian_loop(a, p, s, c, alpha, beta, comp, out):
+def _cartesian_loop(a, p, s, c, kh, kz, comp, out):
     # real arithmetic throughout: Numba's complex operators do not vectorise
     nx, ny, nz = out.shape
     for i in range(nx):
         for j in range(ny):
             sij = s[i, j, 0]
             cij = c[i, j, 0]
-            if comp == 0:
-                for k in range(nz):
-                    f = cij * beta[i, j, k]
+            khij = kh[i, j, 0]
+            for k in range(nz):
+                al, be = _frame_nb(khij, kz[k])
+                if comp == 0:
+                    f = cij * be
                     out[i, j, k] = complex(sij * a[i, j, k].real + f * p[i, j, k].real,
                                            sij * a[i, j, k].imag + f * p[i, j, k].imag)
-            elif comp == 1:
-                for k in range(nz):
-                    f = sij * beta[i, j, k]
+                elif comp == 1:
+                    f = sij * be
                     out[i, j, k] = complex(f * p[i, j, k].real - cij * a[i, j, k].real,
                                            f * p[i, j, k].imag - cij * a[i, j, k].imag)
-            else:
-                for k in range(nz):
-                    f = -alpha[i, j, k]
-                    out[i, j, k] = complex(f * p[i, j, k].real, f * p[i, j, k].imag)
+                else:
+                    out[i, j, k] = complex(-al * p[i, j, k].real, -al * p[i, j, k].imag)
 
 
 _cartesian_nb = _jit(_cartesian_loop)
 
 
-def cartesian(a, p, s, c, alpha, beta, comp, out):
+def cartesian(a, p, basis, comp, out):
     """Cartesian component ``comp`` of ``a e1 + p e2`` (see solver/basis.py) into ``out``."""
     if use_numba():
-        _cartesian_nb(a, p, s, c, alpha, beta, comp, out)
+        _cartesian_nb(a, p, basis.s, basis.c, basis.kh, basis.kz, comp, out)
         return out
+    s, c = basis.s, basis.c
     if comp == 0:
         np.multiply(s, a, out=out)
-        out += c * beta * p
+        out += c * basis.beta * p
     elif comp == 1:
         np.multiply(-c, a, out=out)
-        out += s * beta * p
+        out += s * basis.beta * p
     else:
-        np.multiply(-alpha, p, out=out)
+        np.multiply(-basis.alpha, p, out=out)
     return out
 
 
-# ---------------------------------------------------------------- -i k_j (product)^
-def _divergence_loop(spec, scale, keepx, keepy, keepz, kx, ky, kz, acc, t1, d1, t2, d2,
-                     assign1, assign2):
-    nx, ny, nz = spec.shape
-    for i in range(nx):
-        for j in range(ny):
-            kept = keepx[i] and keepy[j]
-            for k in range(nz):
-                if not (kept and keepz[k]):
-                    if assign1:
-                        acc[t1, i, j, k] = 0.0
-                    if t2 >= 0 and assign2:
-                        acc[t2, i, j, k] = 0.0
-                    continue
-                vr = spec[i, j, k].real * scale
-                vi = spec[i, j, k].imag * scale
-                # -i * kd * v = kd * (vi - i vr)
-                kd = kx[i] if d1 == 0 else (ky[j] if d1 == 1 else kz[k])
-                if assign1:
-                    acc[t1, i, j, k] = complex(kd * vi, -kd * vr)
-                else:
-                    old = acc[t1, i, j, k]
-                    acc[t1, i, j, k] = complex(old.real + kd * vi, old.imag - kd * vr)
-                if t2 >= 0:
-                    kd = kx[i] if d2 == 0 else (ky[j] if d2 == 1 else kz[k])
-                    if assign2:
-                        acc[t2, i, j, k] = complex(kd * vi, -kd * vr)
-                    else:
-                        old = acc[t2, i, j, k]
-                        acc[t2, i, j, k] = complex(old.real + kd * vi, old.imag - kd * vr)
-
-
-_divergence_nb = _jit(_divergence_loop)
-
-
-def add_divergence(spec, mask, scale, keep, kvec, acc, t1, d1, t2=-1, d2=0,
-                   assign1=False, assign2=False):
-    """``acc[t] += -i k_d (D spec / N)`` for (t1, d1) and, if ``t2 >= 0``, (t2, d2).
-
-    With ``assign1`` (``assign2``) the first (second) target is overwritten
-    instead of accumulated, which spares zeroing it beforehand.
-
-    ``D`` is the dealiasing mask: ``mask`` is ``D/N`` as one array (NumPy path),
-    ``keep`` the three 1-D factors of ``D`` with ``scale = 1/N`` and ``kvec`` the
-    three 1-D wavenumber arrays (Numba path).
-    """
-    if use_numba():
-        _divergence_nb(spec, scale, keep[0], keep[1], keep[2], kvec[0], kvec[1], kvec[2],
-                       acc, t1, d1, t2, d2, assign1, assign2)
-        return
-    v = spec * mask
-    shapes = ((-1, 1, 1), (1, -1, 1), (1, 1, -1))
-    for t, d, assign in ((t1, d1, assign1), (t2, d2, assign2)):
-        if t >= 0:
-            if assign:
-                acc[t] = 0
-            acc[t] -= 1j * kvec[d].reshape(shapes[d]) * v
-
-
 # ---------------------------------------------------------------- advection from products
-def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s, c, alpha,
-                   beta, out):
+def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s, c, kh,
+                   out):
     nx, ny, nz = P0.shape
     for i in range(nx):
         kxi = kx[i]
@@ -157,6 +111,7 @@ def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s
             kyj = ky[j]
             sij = s[i, j, 0]
             cij = c[i, j, 0]
+            khij = kh[i, j, 0]
             kept = keepx[i] and keepy[j]
             for k in range(nz):
                 if not (kept and keepz[k]):
@@ -176,8 +131,7 @@ def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s
                 nxr, nxi = sxi * scale, -sxr * scale
                 nyr, nyi = syi * scale, -syr * scale
                 nzr, nzi = szi * scale, -szr * scale
-                be = beta[i, j, k]
-                al = alpha[i, j, k]
+                al, be = _frame_nb(khij, kzk)
                 out[0, i, j, k] = complex(sij * nxr - cij * nyr, sij * nxi - cij * nyi)
                 out[1, i, j, k] = complex(be * (cij * nxr + sij * nyr) - al * nzr,
                                           be * (cij * nxi + sij * nyi) - al * nzi)
@@ -202,23 +156,24 @@ _momentum_nb = _jit(_momentum_loop)
 _scalar_flux_nb = _jit(_scalar_flux_loop)
 
 
-def momentum_advection(P, mask, scale, keep, kvec, s, c, alpha, beta, out):
+def momentum_advection(P, mask, scale, keep, kvec, basis, out):
     """Frame amplitudes of ``-div(u u)`` from the transformed products.
 
-    ``P`` is a sequence of five arrays: the unnormalised transforms of ``uu-ww, vv-ww, uv, uw, vw``;
-    ``N_i = -i k_j (u_i u_j)_k`` (the dropped ``ww`` trace is a gradient), dealiased,
+    ``P`` is a sequence of five arrays: the unnormalised transforms of
+    ``uu-ww, vv-ww, uv, uw, vw``; ``N_i = -i k_j (u_i u_j)_k`` (the dropped ``ww``
+    trace is a gradient), dealiased (``mask`` = D/N, or ``keep`` and ``scale``),
     then ``out[0] = e1 . N``, ``out[1] = e2 . N`` (solver/basis.py).
     """
     if use_numba():
         _momentum_nb(P[0], P[1], P[2], P[3], P[4], scale, keep[0], keep[1], keep[2],
-                     kvec[0], kvec[1], kvec[2], s, c, alpha, beta, out)
+                     kvec[0], kvec[1], kvec[2], basis.s, basis.c, basis.kh, out)
         return
     kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
                   kvec[2].reshape(1, 1, -1))
     Nx = -1j * (kx * P[0] + ky * P[2] + kz * P[3]) * mask
     Ny = -1j * (kx * P[2] + ky * P[1] + kz * P[4]) * mask
     Nz = -1j * (kx * P[3] + ky * P[4]) * mask
-    project(np.stack([Nx, Ny, Nz]), s, c, alpha, beta, out)
+    basis.project(Nx, Ny, Nz, out[0], out[1])
 
 
 def scalar_advection(P, mask, scale, keep, kvec, out):
@@ -230,41 +185,6 @@ def scalar_advection(P, mask, scale, keep, kvec, out):
     kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
                   kvec[2].reshape(1, 1, -1))
     out[...] = -1j * (kx * P[0] + ky * P[1] + kz * P[2]) * mask
-
-
-# ---------------------------------------------------------------- Cartesian -> frame
-def _project_loop(acc, s, c, alpha, beta, out):
-    nx, ny, nz = acc.shape[1:]
-    for i in range(nx):
-        for j in range(ny):
-            sij = s[i, j, 0]
-            cij = c[i, j, 0]
-            for k in range(nz):
-                xr = acc[0, i, j, k].real
-                xi = acc[0, i, j, k].imag
-                yr = acc[1, i, j, k].real
-                yi = acc[1, i, j, k].imag
-                be = beta[i, j, k]
-                al = alpha[i, j, k]
-                out[0, i, j, k] = complex(sij * xr - cij * yr, sij * xi - cij * yi)
-                out[1, i, j, k] = complex(be * (cij * xr + sij * yr) - al * acc[2, i, j, k].real,
-                                          be * (cij * xi + sij * yi) - al * acc[2, i, j, k].imag)
-
-
-_project_nb = _jit(_project_loop)
-
-
-def project(acc, s, c, alpha, beta, out):
-    """Frame amplitudes ``out[0] = e1 . acc``, ``out[1] = e2 . acc``."""
-    if use_numba():
-        _project_nb(acc, s, c, alpha, beta, out)
-        return
-    np.multiply(s, acc[0], out=out[0])
-    out[0] -= c * acc[1]
-    np.multiply(c, acc[0], out=out[1])
-    out[1] += s * acc[1]
-    out[1] *= beta
-    out[1] -= alpha * acc[2]
 
 
 # ---------------------------------------------------------------- physical products
@@ -303,19 +223,19 @@ def product(f, g, out, minus_square_of=None):
 SUM_NAMES = ("Kx", "Ky", "Kz", "grad2", "wT", "T2", "gradT2", "w_ilap_w", "b2")
 
 
-def _sums_loop(a, p, T, has_T, s, c, alpha, beta, kx, ky, kz, sums, e_h):
+def _sums_loop(a, p, T, has_T, s, c, kh, kz, sums, e_h):
     nx, ny, nz = a.shape
     for i in range(nx):
         for j in range(ny):
             sij = s[i, j, 0]
             cij = c[i, j, 0]
-            kh2 = kx[i] * kx[i] + ky[j] * ky[j]
+            khij = kh[i, j, 0]
+            kh2 = khij * khij
             for k in range(nz):
                 w = 2.0 if k > 0 else 1.0
                 ar, ai = a[i, j, k].real, a[i, j, k].imag
                 pr, pi = p[i, j, k].real, p[i, j, k].imag
-                be = beta[i, j, k]
-                al = alpha[i, j, k]
+                al, be = _frame_nb(khij, kz[k])
                 uxr, uxi = sij * ar + cij * be * pr, sij * ai + cij * be * pi
                 uyr, uyi = sij * be * pr - cij * ar, sij * be * pi - cij * ai
                 ux2 = uxr * uxr + uxi * uxi
@@ -354,27 +274,28 @@ def spectral_sums(a, p, T, basis, grid):
     e_h = np.zeros(grid.nzc)
     has_T = T is not None
     if use_numba():
-        _sums_nb(a, p, a if T is None else T, has_T, basis.s, basis.c, basis.alpha,
-                 basis.beta, grid.kx.ravel(), grid.ky.ravel(), grid.kz.ravel(), sums, e_h)
+        _sums_nb(a, p, a if T is None else T, has_T, basis.s, basis.c, basis.kh, basis.kz,
+                 sums, e_h)
         return sums, e_h
     w = grid.half_weight
+    alpha, k2 = basis.alpha, grid.k2
     for i in range(3):
         comp = np.empty(grid.spectral_shape, complex)
-        cartesian(a, p, basis.s, basis.c, basis.alpha, basis.beta, i, comp)
+        cartesian(a, p, basis, i, comp)
         power = comp.real ** 2 + comp.imag ** 2
         sums[i] = 0.5 * grid.volume_sum(power)
         if i < 2:
             e_h += 0.5 * (w * power).sum(axis=(0, 1))
     ap2 = a.real ** 2 + a.imag ** 2 + p.real ** 2 + p.imag ** 2
-    sums[3] = grid.volume_sum(grid.k2 * ap2)
-    w2 = basis.alpha ** 2 * (p.real ** 2 + p.imag ** 2)
+    sums[3] = grid.volume_sum(k2 * ap2)
+    w2 = alpha ** 2 * (p.real ** 2 + p.imag ** 2)
     if has_T:
         t2 = T.real ** 2 + T.imag ** 2
-        sums[4] = grid.volume_sum(-(basis.alpha * (p * np.conj(T))).real)
+        sums[4] = grid.volume_sum(-(alpha * (p * np.conj(T))).real)
         sums[5] = grid.volume_sum(t2)
-        sums[6] = grid.volume_sum(grid.k2 * t2)
+        sums[6] = grid.volume_sum(k2 * t2)
     else:
-        k2safe = np.where(grid.k2 == 0, 1.0, grid.k2)
+        k2safe = np.where(k2 == 0, 1.0, k2)
         sums[7] = -grid.volume_sum(w2 / k2safe)
         sums[8] = grid.volume_sum(w2 / k2safe ** 2)
     return sums, e_h
@@ -485,22 +406,22 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
     """One fused stage of :class:`solver.imex.LowStorageIMEX` for a block operator.
 
     With ``Ly = L y``: ``x += hb (z + Ly)``; unless ``last``,
-    ``y <- (I - haii L)^{-1} (x + hex z + him Ly)``.
+    ``y <- (I - haii L)^{-1} (x + hex z + him Ly)``. The coefficients are the
+    operator's arrays (evaluated once from the terms' monomials): computing them
+    per mode inside the loop costs three times as much (measured at 128^3).
     """
     nf = x.shape[0]
     xf, yf, zf = x.reshape(nf, -1), y.reshape(nf, -1), z.reshape(nf, -1)
     for block in operator.blocks:
         if len(block) == 1:
             f = block[0]
-            L = operator.full_entry(f, f).reshape(-1)
-            _stage_scalar_nb(xf[f], yf[f], zf[f], L, hb, hex_, him, haii, last)
+            _stage_scalar_nb(xf[f], yf[f], zf[f], operator.flat_entry(f, f),
+                             hb, hex_, him, haii, last)
         else:
             f, g = block
             _stage_pair_nb(xf[f], xf[g], yf[f], yf[g], zf[f], zf[g],
-                           operator.full_entry(f, f).reshape(-1),
-                           operator.full_entry(f, g).reshape(-1),
-                           operator.full_entry(g, f).reshape(-1),
-                           operator.full_entry(g, g).reshape(-1),
+                           operator.flat_entry(f, f), operator.flat_entry(f, g),
+                           operator.flat_entry(g, f), operator.flat_entry(g, g),
                            hb, hex_, him, haii, last)
 
 
@@ -514,17 +435,14 @@ def warm_up() -> None:
     keep = np.ones(2, dtype=np.bool_)
     kv = np.ones(2)
     stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
-    stack3 = np.zeros((3, 2, 2, 2), dtype=np.complex128)
-    _cartesian_nb(z, z, one, one, r, r, 0, z.copy())
-    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, r, r, stack2)
+    _cartesian_nb(z, z, one, one, one, kv, 0, z.copy())
+    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, one, stack2)
     _scalar_flux_nb(z, z, z, 1.0, keep, keep, keep, kv, kv, kv, z.copy())
-    _project_nb(stack3, one, one, r, r, stack2)
     _product_nb(r, r, r, r.copy())
     _product_nb(r, r, _EMPTY, r.copy())
     _speed_nb(r, r, r, 1.0, 1.0, 1.0)
     for has_T in (False, True):
-        _sums_nb(z, z, z, has_T, one, one, r, r, kv, kv, kv, np.zeros(len(SUM_NAMES)),
-                 np.zeros(2))
+        _sums_nb(z, z, z, has_T, one, one, one, kv, np.zeros(len(SUM_NAMES)), np.zeros(2))
     f = z.reshape(-1)
     L = r.reshape(-1)
     for last in (False, True):

@@ -10,19 +10,35 @@ from __future__ import annotations
 import numpy as np
 
 
+def evaluate(rows, k2: np.ndarray, alpha: np.ndarray) -> np.ndarray:
+    """``sum c |k|^(2m) alpha^n`` over rows ``(c, m, n)``; negative ``m`` gives 0 at k = 0."""
+    out = np.zeros(np.broadcast_shapes(k2.shape, alpha.shape))
+    k2safe = np.where(k2 == 0, 1.0, k2)
+    for c, m, n in rows:
+        term = c * k2safe ** m * alpha ** n
+        if m < 0:
+            term = np.where(k2 == 0, 0.0, term)
+        out += term
+    return out
+
+
 class LinearOperator:
     """``L`` on a stacked state ``y[field_index, kx, ky, kz]``.
 
     Parameters
     ----------
     fields : sequence of field names, in stacking order
-    entries : mapping ``(row, col) -> coefficient array`` (broadcastable to a field)
+    entries : mapping ``(row, col) -> rows (c, m, n)`` of monomials ``c |k|^(2m) alpha^n``
+    grid, basis : where the coefficients are evaluated
     """
 
-    def __init__(self, fields, entries):
+    def __init__(self, fields, entries, grid, basis):
         self.fields = tuple(fields)
+        self.grid, self.basis = grid, basis
         index = {f: i for i, f in enumerate(self.fields)}
-        self.entries = {(index[r], index[c]): v for (r, c), v in entries.items()}
+        self.monomials = {(index[r], index[c]): list(v) for (r, c), v in entries.items()}
+        self._arrays = {}
+        self._tables = {}
         # connected blocks of coupled fields
         parent = list(range(len(self.fields)))
 
@@ -31,7 +47,7 @@ class LinearOperator:
                 i = parent[i]
             return i
 
-        for (r, c) in self.entries:
+        for (r, c) in self.monomials:
             parent[find(r)] = find(c)
         groups: dict[int, list[int]] = {}
         for i in range(len(self.fields)):
@@ -40,22 +56,37 @@ class LinearOperator:
         if any(len(b) > 2 for b in self.blocks):
             raise ValueError("linear blocks larger than 2x2 are not supported")
         self._zero = np.zeros(1)
-        self._full = {}
 
     def entry(self, r, c):
-        return self.entries.get((r, c), self._zero)
+        """The coefficient ``L[r, c]`` as an array over the slab (made on first use)."""
+        if (r, c) not in self.monomials:
+            return self._zero
+        if (r, c) not in self._arrays:
+            self._arrays[(r, c)] = evaluate(self.monomials[(r, c)], self.grid.k2,
+                                            self.basis.alpha)
+        return self._arrays[(r, c)]
 
-    def full_entry(self, r, c):
-        """The coefficient as a contiguous array of the field's shape (for fused kernels)."""
-        key = ("full", r, c)
-        if key not in self._full:
-            shape = np.broadcast_shapes(*(np.shape(v) for v in self.entries.values()))
-            arr = np.asarray(self.entry(r, c), dtype=np.float64)
-            if not (arr.shape == shape and arr.flags.c_contiguous and arr.flags.writeable):
-                # a writable copy: compiled kernels see one array type, and no read-only view
-                arr = np.array(np.broadcast_to(arr, shape), dtype=np.float64, order="C")
-            self._full[key] = arr
-        return self._full[key]
+    def flat_entry(self, r, c) -> np.ndarray:
+        """``L[r, c]`` as a contiguous, writable 1-D array over the slab (compiled kernels).
+
+        Entries with the same monomials share one array.
+        """
+        key = tuple(self.monomials.get((r, c), []))
+        if key not in self._tables:
+            shape = self.grid.spectral_shape
+            arr = np.zeros(shape) if not key else np.array(
+                np.broadcast_to(evaluate(key, self.grid.k2, self.basis.alpha), shape),
+                dtype=np.float64, order="C")
+            self._tables[key] = arr.reshape(-1)
+        return self._tables[key]
+
+    def prepare(self) -> None:
+        """Evaluate every coefficient array now (before a run's large arrays exist, so that
+        the temporaries of the evaluation do not add to the peak memory)."""
+        for block in self.blocks:
+            for r in block:
+                for c in block:
+                    self.flat_entry(r, c)
 
     def apply(self, y: np.ndarray) -> np.ndarray:
         """In place: ``y <- L y``."""

@@ -8,7 +8,6 @@ shear forcing (explicit). ``lowpe``: viscosity and the quasi-static buoyancy
 from __future__ import annotations
 
 from dataclasses import dataclass
-from types import SimpleNamespace
 
 from .basis import CrayaHerring
 from .case import Case
@@ -39,13 +38,12 @@ class Model:
         return next((t for t in self.terms if isinstance(t, ShearForcing)), None)
 
     def operator(self, grid: Grid, basis: CrayaHerring) -> LinearOperator:
-        """Sum the linear terms' coefficients into the implicit operator."""
-        g = SimpleNamespace(k2=grid.k2, alpha=basis.alpha, beta=basis.beta)
+        """Collect the linear terms' monomials into the implicit operator."""
         entries: dict = {}
         for term in self.linear_terms:
-            for key, value in term.linear(g).items():
-                entries[key] = entries[key] + value if key in entries else value
-        return LinearOperator(self.fields, entries)
+            for key, rows in term.linear().items():
+                entries.setdefault(key, []).extend(rows)
+        return LinearOperator(self.fields, entries, grid, basis)
 
 
 def boussinesq(Re, B, Pe, F0, kf) -> Model:

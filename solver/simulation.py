@@ -77,6 +77,8 @@ class Simulation:
         self.model = model if model is not None else model_for(case)
         self.fields = self.model.fields
         self.operator = self.model.operator(self.grid, self.basis)
+        if kernels.use_numba():
+            self.operator.prepare()
         self.tendency = PseudoSpectralTendency(self.grid, self.basis, self.fft, self.fields,
                                                self.model.advection, self.model.forcing)
         self.state = pyfftw.empty_aligned((len(self.fields),) + self.grid.spectral_shape,

@@ -86,7 +86,7 @@ class PseudoSpectralTendency:
         a, p = y[0], y[1]
         b = self.basis
         for comp in range(3):
-            kernels.cartesian(a, p, b.s, b.c, b.alpha, b.beta, comp, self.scratch)
+            kernels.cartesian(a, p, b, comp, self.scratch)
             self.fft.inverse(self.scratch, self.velocity[comp])
         if self.has_T:
             np.copyto(self.scratch, y[2])
@@ -119,8 +119,7 @@ class PseudoSpectralTendency:
             fwd(kernels.product(u, w, q), P[3])
             fwd(kernels.product(v, w, q), P[4])
             b = self.basis
-            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec,
-                                       b.s, b.c, b.alpha, b.beta, out)
+            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec, b, out)
             if self.has_T and self.advection.with_temperature:
                 T = self.temperature
                 for comp in range(3):
