@@ -30,6 +30,9 @@ class Output:
     def close(self, sim, reason: str) -> None:
         pass
 
+    def flush(self) -> None:
+        """Make what was written so far durable (called before a checkpoint)."""
+
 
 class EveryNSteps:
     """Cadence in steps, counted from step 0 of the run's history."""
@@ -94,6 +97,10 @@ class TimeSeriesOutput(Output):
         if self.writer is not None:
             self.writer.append(d)
         self.last, self.last_step = d, sim.step_count
+
+    def flush(self):
+        if self.writer is not None:
+            self.writer.flush()
 
     def close(self, sim, reason):
         if reason != "blowup" and self.last_step != sim.step_count:

@@ -282,6 +282,8 @@ class Simulation:
                 longest, previous = max(longest, current - previous), current
                 for out in self.outputs:
                     if out.due(self):
+                        if out is not series and series is not None:
+                            series.flush()  # the series reaches every file written after it
                         out.write(self)
                 fresh = series is not None and series.last_step == self.step_count
                 if fresh and not math.isfinite(series.last["K"]):

@@ -44,15 +44,22 @@ def _case(model: str, n: int, steps: int, threads: int = 1):
 def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0) -> dict | None:
     """Measure inside one MPI job; returns the record on rank 0.
 
-    ``diag_every > 0`` computes the diagnostics every that many steps inside the
-    timed step, as a run writing its time series does.
+    ``diag_every > 0`` computes the diagnostics and appends them to a time-series
+    file every that many steps inside the timed step, as a run does.
     """
-    from solver import diagnostics
     from solver.parallel import world
     from solver.simulation import Simulation
     comm = world()
     t0 = time.perf_counter()
     sim = Simulation(_case(model, n, steps, threads), comm)
+    series = None
+    if diag_every:
+        import tempfile
+        from solver.outputs import TimeSeriesOutput
+        folder = comm.bcast(tempfile.mkdtemp(prefix="shearmix-bench-") if comm.rank == 0
+                            else None)
+        series = TimeSeriesOutput(diag_every)
+        series.open(sim, folder, append=False)
     setup = comm.max(time.perf_counter() - t0)
     t0 = time.perf_counter()
     sim.advance()
@@ -64,8 +71,8 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
         comm.barrier()
         t0, c0 = time.perf_counter(), time.process_time()
         sim.advance()
-        if diag_every and sim.step_count % diag_every == 0:
-            diagnostics.compute(sim)
+        if series is not None and series.due(sim):
+            series.write(sim)  # diagnostics and the HDF5 record, as in a run
         cpu.append(comm.max(time.process_time() - c0))
         times.append(comm.max(time.perf_counter() - t0))
     n_fwd = (sim.fft.count_forward - fwd0) // steps
