@@ -197,11 +197,25 @@ def member_status(run_dir, t_end=None):
     return out
 
 
+def _run_t_end(run_dir):
+    """``time.t_end`` of the case the run actually used (its ``case.yaml``, overrides
+    included: a chained member's end counts from the state it started from)."""
+    import yaml
+    try:
+        with open(os.path.join(run_dir, "case.yaml"), encoding="utf-8") as fh:
+            case = yaml.safe_load(fh)
+        return case["time"]["t_end"]
+    except (OSError, KeyError, TypeError, yaml.YAMLError):
+        return None
+
+
 def sweep_status(sweep):
     """Status rows of every member of a loaded sweep, in member order."""
     rows = []
     for m in sweep.members:
-        t_end = m.raw.get("time", {}).get("t_end") if isinstance(m.raw.get("time"), dict) else None
+        t_end = _run_t_end(sweep.run_dir(m))
+        if t_end is None:
+            t_end = m.raw.get("time", {}).get("t_end") if isinstance(m.raw.get("time"), dict) else None
         st = member_status(sweep.run_dir(m), None if t_end is None else float(t_end))
         st["member"] = m.name
         st["t_end"] = t_end

@@ -272,5 +272,7 @@ def test_chained_member_starts_from_its_neighbour(tmp_path):
     assert "BPe5: starts from BPe1's state at t = 0.4" in r.stdout
     t, step = _series(tmp_path / "chain" / "runs" / "BPe5")
     assert t[0] == pytest.approx(0.4) and t[-1] == pytest.approx(0.8)
+    st = _cli("sweep", "status", str(path), cwd=tmp_path)
+    assert [x for x in st.stdout.splitlines() if x.startswith("BPe5")][0].split()[3] == "0.8/0.8"
     with h5py.File(tmp_path / "chain" / "runs" / "BPe5" / "timeseries.h5") as fh:
         assert "BPe: 5" in fh.attrs["case"]
