@@ -354,13 +354,18 @@ def _apply_overrides(data: dict, assignments, source: str) -> None:
     for key, value in items:
         if key not in SCHEMA:
             raise CaseError(f"--set {key}: unknown key{_suggest(key)}")
-        node = data
-        parts = key.split(".")
-        for part in parts[:-1]:
-            if not isinstance(node.get(part), dict):
-                node[part] = {}
-            node = node[part]
-        node[parts[-1]] = value
+        set_dotted(data, key, value)
+
+
+def set_dotted(data: dict, key: str, value) -> None:
+    """``data['a']['b'] = value`` for ``key = 'a.b'``, making sections as needed."""
+    node = data
+    parts = key.split(".")
+    for part in parts[:-1]:
+        if not isinstance(node.get(part), dict):
+            node[part] = {}
+        node = node[part]
+    node[parts[-1]] = value
 
 
 def _suggest(key: str) -> str:

@@ -42,7 +42,7 @@ import time
 
 import yaml
 
-from solver.case import CaseError, SCHEMA, case_from_dict
+from solver.case import CaseError, SCHEMA, case_from_dict, set_dotted
 from solver.series import SERIES_FILE
 from solver.version import __version__
 
@@ -221,16 +221,6 @@ def _label(key, value):
     return f"{short}{text}"
 
 
-def _set_dotted(raw, key, value):
-    node = raw
-    parts = key.split(".")
-    for part in parts[:-1]:
-        if not isinstance(node.get(part), dict):
-            node[part] = {}
-        node = node[part]
-    node[parts[-1]] = value
-
-
 def _get_dotted(raw, key):
     node = raw
     for part in key.split("."):
@@ -293,7 +283,7 @@ def load_sweep(path):
     for k, v in sets.items():
         if k not in SCHEMA:
             _fail(path, f"set.{k}", "not a case key (see 'shearmix keys')")
-        _set_dotted(base, k, v)
+        set_dotted(base, k, v)
 
     vary = data.get("vary")
     if not isinstance(vary, dict) or not vary:
@@ -329,7 +319,7 @@ def load_sweep(path):
         seen[mname] = vals
         raw = copy.deepcopy(base)
         for k, v in vals.items():
-            _set_dotted(raw, k, v)
+            set_dotted(raw, k, v)
         raw["name"] = f"{name}-{mname}"
         try:
             case_from_dict(raw, f"{path} (member {mname})")
