@@ -281,6 +281,12 @@ def summarize_run(path, options=None, **overrides):
         row["correlation_times"] = float("nan")
     if row["kmax_etaK"] < opts.kmax_etaK_min:
         warnings.append(f"under-resolved: kmax*eta_K = {row['kmax_etaK']:.3g} < {opts.kmax_etaK_min:g}")
+    # spectral tail over the same window, where the run wrote spectra (tools/spectral_tail.py)
+    from .spectral_tail import tail_ratio, tail_warning
+    row["tail_ratio"] = tail_ratio(os.path.dirname(os.path.abspath(fname)), row["t_start"])
+    tail = tail_warning(row["tail_ratio"])
+    if tail:
+        warnings.append(tail)
     if row["model"] == "lowpe" and row["Pe_turb"] > opts.pe_turb_max:
         warnings.append(f"outside low-Peclet validity: Pe_turb = {row['Pe_turb']:.3g} > {opts.pe_turb_max:g}")
     reg = classify(row, opts.thresholds)

@@ -22,7 +22,6 @@ import os
 import numpy as np
 
 from .fits import EXPECTED_EXPONENTS, compare_exponent, fit_power_law
-from .spectral_tail import tail_ratio, tail_warning
 from .summary import SERIES_FILE, SummaryOptions, summarize_run, write_csv
 from .sweep_status import sweep_status
 
@@ -86,17 +85,24 @@ def fit_rows(rows, x="BPe", quantities=FIT_QUANTITIES, x_range=None, regime=None
 
 
 FIT_COLUMNS = ("y", "x", "n", "p", "p_err", "p_lo", "p_hi", "confidence", "A", "chi2_red",
-               "weighted", "expected", "consistent", "z", "x_lo", "x_hi", "selection", "note")
+               "weighted", "expected", "consistent", "z", "x_lo", "x_hi", "selection", "note",
+               "sweep", "version")
 
 
-def write_fits(fits, path, selection=""):
-    """Write fit results as CSV (one row per quantity; empty cells where undefined)."""
+def write_fits(fits, path, selection="", sweep=""):
+    """Write fit results as CSV (one row per quantity; empty cells where undefined).
+
+    Each row names the sweep file it came from and the program version.
+    """
+    from solver.version import __version__
     with open(path, "w", newline="") as fh:
         w = csv.DictWriter(fh, fieldnames=FIT_COLUMNS)
         w.writeheader()
         for f in fits:
             row = {k: f.get(k) for k in FIT_COLUMNS}
             row["selection"] = f.get("selection", selection)
+            row["sweep"] = sweep
+            row["version"] = __version__
             w.writerow({k: ("" if v is None else v) for k, v in row.items()})
 
 
@@ -131,11 +137,6 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         except (ValueError, OSError) as exc:
             skipped[m.name] = str(exc)
             continue
-        # the spectral tail (tools/spectral_tail.py) over the same window
-        row["tail_ratio"] = tail_ratio(run_dir, row["t_start"])
-        warn = tail_warning(row["tail_ratio"])
-        if warn:
-            row["warnings"].append(warn)
         rows.append({"member": m.name, "state": states.get(m.name, ""), **row})
     files = []
     log(f"sweep {sweep.name}: {len(rows)} of {len(sweep.members)} members summarised")
@@ -159,7 +160,7 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         ", ".join(s for s in (f"BPe in [{x_range[0]:g}, {x_range[1]:g}]" if x_range else "",
                               f"regime {regime}" if regime else "") if s)
     fpath = os.path.join(out_dir, "fits.csv")
-    write_fits(fits, fpath, selection)
+    write_fits(fits, fpath, selection, sweep.source)
     files.append(fpath)
     log(f"  power laws y = A BPe^p ({selection}):")
     for f in fits:
