@@ -2,8 +2,8 @@
 
 DESIGN.md section 2: with T = Pe lap^{-1} w + O(Pe^2) the momentum equations
 coincide, so the velocity difference after a fixed time must shrink like Pe
-(the reduction of Lignieres 1999, Astron. Astrophys. 348, 933, is the limit
-being checked; the first-order rate is common practice for such expansions).
+(the low-Peclet reduction of DESIGN.md section 2 is the limit being
+checked; the first-order rate is common practice for such expansions).
 """
 import numpy as np
 

@@ -135,7 +135,7 @@ def test_low_peclet_damping_exact(kx, kz, ky0):
 
 # ---------------------------------------------------------------- limits and consistency
 def test_full_model_tends_to_low_peclet():
-    """Lignières 1999 (A&A 348; reference quoted from memory): the Boussinesq equations at Pe -> 0 with B Pe fixed
+    """DESIGN.md section 2 (the low-Peclet reduction): the Boussinesq equations at Pe -> 0 with B Pe fixed
     reduce to the low-Péclet model; the eigenvalue difference falls like Pe."""
     BPe, Re = 2.0, 40.0
     lo = FlowParams("lowpe", Re=Re, BPe=BPe)
