@@ -169,38 +169,32 @@ class LowStorageIMEX:
         tab = self.tableau
         s = tab.stages
         y, z = self.stage, self.tendency
+        fused = kernels.use_numba() and hasattr(self.operator, "flat_entry")
         np.copyto(y, x)
-        if kernels.use_numba() and hasattr(self.operator, "flat_entry"):
-            for i in range(s):
-                if i == 0 and n0 is not None:
-                    if n0 is not z:
-                        np.copyto(z, n0)
-                else:
-                    self.explicit(y, t + tab.c[i] * h, z)
-                bi = tab.b_ex[i]
-                last = i == s - 1
-                nxt = i if last else i + 1
-                kernels.stage_update(self.operator, x, y, z, h * bi,
-                                     h * (tab.A_ex[nxt, i] - bi), h * (tab.A_im[nxt, i] - bi),
-                                     h * tab.A_im[nxt, nxt], last)
-            return x
         for i in range(s):
             if i == 0 and n0 is not None:
                 if n0 is not z:
                     np.copyto(z, n0)
             else:
                 self.explicit(y, t + tab.c[i] * h, z)
-            self.operator.apply(y)  # y <- L Y_i
             bi = tab.b_ex[i]
+            last = i == s - 1
+            nxt = i if last else i + 1
+            hex_, him = h * (tab.A_ex[nxt, i] - bi), h * (tab.A_im[nxt, i] - bi)
+            if fused:
+                kernels.stage_update(self.operator, x, y, z, h * bi, hex_, him,
+                                     h * tab.A_im[nxt, nxt], last)
+                continue
+            self.operator.apply(y)  # y <- L Y_i
             if bi:
                 x += (h * bi) * z
                 x += (h * bi) * y
-            if i == s - 1:
+            if last:
                 break
-            y *= h * (tab.A_im[i + 1, i] - bi)
+            y *= him
             y += x
-            y += (h * (tab.A_ex[i + 1, i] - bi)) * z
-            self.operator.solve(y, h * tab.A_im[i + 1, i + 1])
+            y += hex_ * z
+            self.operator.solve(y, h * tab.A_im[nxt, nxt])
         return x
 
 
