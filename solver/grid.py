@@ -113,10 +113,3 @@ class Grid:
         half spectrum the ``nz > 0`` modes count twice.
         """
         return float(np.sum(self.half_weight * product_spectral))
-
-    def bytes_estimate(self, nfields: int) -> int:
-        """Rough resident memory of a run (all ranks), from its array count."""
-        n = self.npoints
-        spectral = 8 * n  # one complex half-spectrum field per grid point
-        per_point = (3 + 3) * nfields * spectral / n + 5 * 8 + 6 * 4
-        return int(per_point * n)

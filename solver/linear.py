@@ -126,7 +126,3 @@ class LinearOperator:
                 y[j] -= m_ji * yi
                 y[j] /= det
         return y
-
-    def rates(self):
-        """Per-field diagonal rates (for documentation and tests)."""
-        return {self.fields[i]: self.entry(i, i) for i in range(len(self.fields))}

@@ -99,9 +99,6 @@ class PseudoSpectralTendency:
         self.cfl_rate = float(comm.max(rate))
         self.max_speed = float(np.sqrt(comm.max(speed2)))
 
-    def grid_comm_max(self, value):
-        return self.fft.comm.max(value)
-
     def __call__(self, y: np.ndarray, t: float, out: np.ndarray) -> np.ndarray:
         g = self.grid
         if self.advection is None:
