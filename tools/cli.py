@@ -47,7 +47,8 @@ def cmd_check(args) -> int:
     print(f"case {case.name} ({args.case}): valid")
     for key, value in info.items():
         if key == "expected memory":
-            value = f"{value / 2 ** 20:.1f} MiB (estimate)"
+            value = (f"{value / 2 ** 20:.0f} MiB (estimate, with ~250 MiB per rank for "
+                     "Python and its libraries)")
         elif key == "bytes per point":
             value = f"{value:.0f}"
         elif isinstance(value, tuple):
