@@ -84,6 +84,34 @@ def _cartesian_loop(a, p, s, c, kh, kz, comp, out):
 _cartesian_nb = _jit(_cartesian_loop)
 
 
+def _velocity_loop(a, p, s, c, kh, kz, u, v, w):
+    nx, ny, nz = a.shape
+    for i in range(nx):
+        for j in range(ny):
+            sij = s[i, j, 0]
+            cij = c[i, j, 0]
+            khij = kh[i, j, 0]
+            for k in range(nz):
+                al, be = _frame_nb(khij, kz[k])
+                ar, ai = a[i, j, k].real, a[i, j, k].imag
+                pr, pi = p[i, j, k].real, p[i, j, k].imag
+                u[i, j, k] = complex(sij * ar + cij * be * pr, sij * ai + cij * be * pi)
+                v[i, j, k] = complex(sij * be * pr - cij * ar, sij * be * pi - cij * ai)
+                w[i, j, k] = complex(-al * pr, -al * pi)
+
+
+_velocity_nb = _jit(_velocity_loop)
+
+
+def velocity(a, p, basis, u, v, w):
+    """All three Cartesian components of ``a e1 + p e2`` in one pass over the slab."""
+    if use_numba():
+        _velocity_nb(a, p, basis.s, basis.c, basis.kh, basis.kz, u, v, w)
+        return
+    for comp, out in enumerate((u, v, w)):
+        cartesian(a, p, basis, comp, out)
+
+
 def cartesian(a, p, basis, comp, out):
     """Cartesian component ``comp`` of ``a e1 + p e2`` (see solver/basis.py) into ``out``."""
     if use_numba():
@@ -436,6 +464,7 @@ def warm_up() -> None:
     kv = np.ones(2)
     stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
     _cartesian_nb(z, z, one, one, one, kv, 0, z.copy())
+    _velocity_nb(z, z, one, one, one, kv, z.copy(), z.copy(), z.copy())
     _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, one, stack2)
     _scalar_flux_nb(z, z, z, 1.0, keep, keep, keep, kv, kv, kv, z.copy())
     _product_nb(r, r, r, r.copy())

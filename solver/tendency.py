@@ -83,11 +83,10 @@ class PseudoSpectralTendency:
 
     def to_physical(self, y: np.ndarray) -> None:
         """Velocity (and temperature) of state ``y`` on the grid, into the work arrays."""
-        a, p = y[0], y[1]
-        b = self.basis
+        # one pass makes all three spectral components; each inverse then consumes one
+        kernels.velocity(y[0], y[1], self.basis, self.P[0], self.P[1], self.P[2])
         for comp in range(3):
-            kernels.cartesian(a, p, b, comp, self.scratch)
-            self.fft.inverse(self.scratch, self.velocity[comp])
+            self.fft.inverse(self.P[comp], self.velocity[comp])
         if self.has_T:
             np.copyto(self.scratch, y[2])
             self.fft.inverse(self.scratch, self.temperature)
