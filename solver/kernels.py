@@ -59,31 +59,6 @@ _frame_nb = _jit(_frame)
 
 
 # ---------------------------------------------------------------- frame -> Cartesian
-def _cartesian_loop(a, p, s, c, kh, kz, comp, out):
-    # real arithmetic throughout: Numba's complex operators do not vectorise
-    nx, ny, nz = out.shape
-    for i in range(nx):
-        for j in range(ny):
-            sij = s[i, j, 0]
-            cij = c[i, j, 0]
-            khij = kh[i, j, 0]
-            for k in range(nz):
-                al, be = _frame_nb(khij, kz[k])
-                if comp == 0:
-                    f = cij * be
-                    out[i, j, k] = complex(sij * a[i, j, k].real + f * p[i, j, k].real,
-                                           sij * a[i, j, k].imag + f * p[i, j, k].imag)
-                elif comp == 1:
-                    f = sij * be
-                    out[i, j, k] = complex(f * p[i, j, k].real - cij * a[i, j, k].real,
-                                           f * p[i, j, k].imag - cij * a[i, j, k].imag)
-                else:
-                    out[i, j, k] = complex(-al * p[i, j, k].real, -al * p[i, j, k].imag)
-
-
-_cartesian_nb = _jit(_cartesian_loop)
-
-
 def _velocity_loop(a, p, s, c, kh, kz, u, v, w):
     nx, ny, nz = a.shape
     for i in range(nx):
@@ -109,24 +84,7 @@ def velocity(a, p, basis, u, v, w):
         _velocity_nb(a, p, basis.s, basis.c, basis.kh, basis.kz, u, v, w)
         return
     for comp, out in enumerate((u, v, w)):
-        cartesian(a, p, basis, comp, out)
-
-
-def cartesian(a, p, basis, comp, out):
-    """Cartesian component ``comp`` of ``a e1 + p e2`` (see solver/basis.py) into ``out``."""
-    if use_numba():
-        _cartesian_nb(a, p, basis.s, basis.c, basis.kh, basis.kz, comp, out)
-        return out
-    s, c = basis.s, basis.c
-    if comp == 0:
-        np.multiply(s, a, out=out)
-        out += c * basis.beta * p
-    elif comp == 1:
-        np.multiply(-c, a, out=out)
-        out += s * basis.beta * p
-    else:
-        np.multiply(-basis.alpha, p, out=out)
-    return out
+        basis.to_cartesian(a, p, comp, out)
 
 
 # ---------------------------------------------------------------- advection from products
@@ -309,7 +267,7 @@ def spectral_sums(a, p, T, basis, grid):
     alpha, k2 = basis.alpha, grid.k2
     for i in range(3):
         comp = np.empty(grid.spectral_shape, complex)
-        cartesian(a, p, basis, i, comp)
+        basis.to_cartesian(a, p, i, comp)
         power = comp.real ** 2 + comp.imag ** 2
         sums[i] = 0.5 * grid.volume_sum(power)
         if i < 2:
@@ -463,7 +421,6 @@ def warm_up() -> None:
     keep = np.ones(2, dtype=np.bool_)
     kv = np.ones(2)
     stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
-    _cartesian_nb(z, z, one, one, one, kv, 0, z.copy())
     _velocity_nb(z, z, one, one, one, kv, z.copy(), z.copy(), z.copy())
     _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, one, stack2)
     _scalar_flux_nb(z, z, z, 1.0, keep, keep, keep, kv, kv, kv, z.copy())

@@ -30,7 +30,7 @@ import os
 import numpy as np
 import yaml
 
-from .case import Case, parse_length
+from .case import Case
 from .checkpoint import FOLDER, CheckpointError, latest, read_checkpoint_header, read_fields
 from .fileheader import history_of, now
 from .slabfile import agree

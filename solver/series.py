@@ -20,6 +20,17 @@ from .version import __version__
 SERIES_FILE = "timeseries.h5"
 
 
+def stamp_provenance(attrs, case, **extra) -> None:
+    """Record the full case, the program version, the model and the convention."""
+    attrs["case"] = case.to_yaml()
+    attrs["version"] = __version__
+    attrs["model"] = case.model
+    attrs["convention"] = case.convention
+    for key, value in extra.items():
+        attrs[key] = value
+    attrs["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
+
+
 class TimeSeriesWriter:
     """Append records to ``timeseries.h5`` (call on rank 0 only)."""
 
@@ -34,11 +45,7 @@ class TimeSeriesWriter:
         self.fh = h5py.File(path, "a" if append else "w")
         attrs = self.fh.attrs
         if not append or "version" not in attrs:
-            attrs["case"] = case.to_yaml()
-            attrs["version"] = __version__
-            attrs["model"] = case.model
-            attrs["convention"] = case.convention
-            attrs["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
+            stamp_provenance(attrs, case)
         for name in self.names:
             if name not in self.fh:
                 self.fh.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8",

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import math
 import os
-import sys
 import time
 
 import numpy as np

@@ -35,13 +35,12 @@ from __future__ import annotations
 
 import math
 import os
-import time
 
 import h5py
 import numpy as np
 
 from .outputs import Output
-from .version import __version__
+from .series import stamp_provenance
 
 SPECTRA_FILE = "spectra.h5"
 DIRECTIONS = ("kx", "ky", "kz", "shell")
@@ -143,13 +142,7 @@ class SpectraWriter:
         self.fh = h5py.File(path, "a" if append else "w")
         attrs = self.fh.attrs
         if not append or "version" not in attrs:
-            attrs["case"] = case.to_yaml()
-            attrs["version"] = __version__
-            attrs["model"] = case.model
-            attrs["convention"] = case.convention
-            attrs["thermal_field"] = thermal_field
-            attrs["shell_width"] = bins.dk
-            attrs["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
+            stamp_provenance(attrs, case, thermal_field=thermal_field, shell_width=bins.dk)
         for name in ("t", "step"):
             if name not in self.fh:
                 self.fh.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8", chunks=(256,))
