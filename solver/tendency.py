@@ -109,13 +109,6 @@ class PseudoSpectralTendency:
         if self.advection is not None:
             u, v, w = self.velocity
             q, P, fwd = self.product, self.P, self.fft.forward
-            fwd(kernels.product(u, u, q, w), P[0])
-            fwd(kernels.product(v, v, q, w), P[1])
-            fwd(kernels.product(u, v, q), P[2])
-            fwd(kernels.product(u, w, q), P[3])
-            fwd(kernels.product(v, w, q), P[4])
-            b = self.basis
-            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec, b, out)
             if self.has_T and self.advection.with_temperature:
                 T = self.temperature
                 for comp in range(3):
@@ -123,6 +116,17 @@ class PseudoSpectralTendency:
                 kernels.scalar_advection(P, self.mask, self.scale, self.keep, self.kvec, out[2])
             elif self.has_T:
                 out[2] = 0
+            # the velocity is not needed past this point: the last two passes
+            # write the stresses over it (fewer memory passes, no extra array)
+            fwd(kernels.product(u, v, q), P[2])
+            kernels.stress_pair(u, w, q, u)   # q = uu - ww, u <- uw
+            fwd(q, P[0])
+            fwd(u, P[3])
+            kernels.stress_pair(v, w, v, w)   # v <- vv - ww, w <- vw
+            fwd(v, P[1])
+            fwd(w, P[4])
+            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec,
+                                       self.basis, out)
         for idx, fa, fp in self.forcing:
             out[0][idx] += fa
             out[1][idx] += fp

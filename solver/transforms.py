@@ -1,8 +1,9 @@
 """Distributed real-to-complex 3D FFTs on x-slabs, built on FFTW through pyfftw.
 
 Forward: real-to-complex over (y, z) on each x-slab, a global transpose
-(``Alltoall`` of contiguous blocks) that gives each rank all x for its
-ky-columns, then a complex FFT over x. Inverse: the same steps backwards. On
+(``Alltoall``; the outgoing blocks are described by an MPI vector type rather
+than packed) that gives each rank all x for its ky-columns, then a complex FFT
+over x. Inverse: the same steps backwards. On
 one rank a single 3D plan does it all. Plans are made once; FFTW wisdom is
 read from and saved to a cache file so later runs plan in milliseconds.
 
@@ -83,9 +84,9 @@ class SlabTransform:
                                     direction="FFTW_BACKWARD",
                                     flags=flags + ("FFTW_DESTROY_INPUT",), threads=threads)
         else:
-            nxl, nyl, nzc = grid.nx_local, grid.ny_local, grid.nzc
+            nxl, nzc = grid.nx_local, grid.nzc
             self._mid = pyfftw.empty_aligned((nxl, ny, nzc), dtype=np.complex128)
-            self._blocks = pyfftw.empty_aligned((self.P, nxl, nyl, nzc), dtype=np.complex128)
+            self._exchange = comm.slab_exchange(nxl, ny, nzc)
             self._fwd_yz = pyfftw.FFTW(self.physical, self._mid, axes=(1, 2),
                                        direction="FFTW_FORWARD", flags=flags, threads=threads)
             self._inv_yz = pyfftw.FFTW(self._mid, self.physical, axes=(1, 2),
@@ -112,13 +113,9 @@ class SlabTransform:
             self._fwd.update_arrays(physical, spectral)
             self._fwd.execute()
             return spectral
-        nxl, nyl = self.grid.nx_local, self.grid.ny_local
         self._fwd_yz.update_arrays(physical, self._mid)
         self._fwd_yz.execute()
-        # block j (the ky-columns of rank j) must be contiguous to be sent
-        np.copyto(self._blocks,
-                  self._mid.reshape(nxl, self.P, nyl, -1).transpose(1, 0, 2, 3))
-        self.comm.alltoall(self._blocks, spectral)
+        self._exchange.to_y_slabs(self._mid, spectral)
         self._fwd_x.update_arrays(spectral, spectral)
         self._fwd_x.execute()
         return spectral
@@ -130,11 +127,9 @@ class SlabTransform:
             self._inv.update_arrays(spectral, physical)
             self._inv.execute()
             return physical
-        nxl, nyl = self.grid.nx_local, self.grid.ny_local
         self._inv_x.update_arrays(spectral, spectral)
         self._inv_x.execute()
-        self.comm.alltoall(spectral, self._blocks)
-        np.copyto(self._mid.reshape(nxl, self.P, nyl, -1).transpose(1, 0, 2, 3), self._blocks)
+        self._exchange.to_x_slabs(spectral, self._mid)
         self._inv_yz.update_arrays(self._mid, physical)
         self._inv_yz.execute()
         return physical
