@@ -20,6 +20,8 @@ from typing import Any, Callable
 
 import yaml
 
+from .grid import dealias_cutoff
+
 MODELS = ("boussinesq", "lowpe")
 INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")
 MODE_COMPONENTS = ("vortical", "poloidal", "T")
@@ -524,10 +526,10 @@ def validate(data: dict, source: str = "<case>") -> Case:
     if values["initial.kind"] == "mode":
         for axis, n in zip("xyz", case.shape):
             idx = values[f"initial.mode.n{axis}"]
-            if abs(idx) > (n - 1) // 3 or (axis == "z" and idx < 0):
+            if abs(idx) > dealias_cutoff(n) or (axis == "z" and idx < 0):
                 raise CaseError(f"{source}: initial.mode.n{axis}: must lie within the dealiased "
-                                f"band 0..{(n - 1) // 3} (|n| for x, y), got {idx}")
-    if int(round(turns)) > (case.Ny - 1) // 3:
+                                f"band 0..{dealias_cutoff(n)} (|n| for x, y), got {idx}")
+    if int(round(turns)) > dealias_cutoff(case.Ny):
         raise CaseError(f"{source}: grid.Ny: the forcing mode ky = kf needs Ny > "
                         f"{3 * int(round(turns))} after 2/3 dealiasing, got {case.Ny}")
     return case

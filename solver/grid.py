@@ -75,6 +75,11 @@ class Grid:
                 & (np.abs(self.ny_index) <= self.cutoff[1])
                 & (self.nz_index <= self.cutoff[2]))
         self.dealias = np.ascontiguousarray(keep)
+        #: the same band as compiled kernels walk it: kept kx rows, kept local ky rows,
+        #: and the count of kept kz (0 .. cutoff, contiguous from 0)
+        self.keep_x = np.ascontiguousarray(np.abs(self.nx_index.ravel()) <= self.cutoff[0])
+        self.keep_y = np.ascontiguousarray(np.abs(self.ny_index.ravel()) <= self.cutoff[1])
+        self.nz_kept = self.cutoff[2] + 1
         #: largest resolved wavenumber after dealiasing (smallest over directions)
         self.kmax = min(2 * np.pi / L * c for L, c in zip(self.lengths, self.cutoff))
 

@@ -145,12 +145,13 @@ def apply(sim, path: str, checked: dict) -> None:
     error = agree(sim.comm, error)
     if error:
         raise RestartError(error)
-    same_grid = tuple(header["grid"]) == sim.grid.shape
     for i, name in enumerate(sim.fields):
         if name in data:
             sim.state[i] = data[name]
-            if not same_grid:  # the kept modes are within the new band already
-                sim.state[i] *= sim.grid.dealias
+            # the engine keeps the state zero outside the dealiased band (its
+            # kernels skip those modes); a resolution change or a file from
+            # elsewhere may carry some there
+            sim.state[i] *= sim.grid.dealias
         elif name == "T":
             sim.state[i] = quasi_static_T(sim, sim.state[sim.fields.index("p")], sim.case.Pe)
             sim.state[i] *= sim.grid.dealias

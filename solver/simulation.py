@@ -82,6 +82,8 @@ class Simulation:
                                                self.model.advection, self.model.forcing)
         self.state = pyfftw.empty_aligned((len(self.fields),) + self.grid.spectral_shape,
                                           dtype=np.complex128)
+        # invariant: zero outside the 2/3-rule band (every way in - set_physical,
+        # a restart - truncates; the compiled kernels rely on it and skip those modes)
         self.state[...] = 0
         self.tableau = TABLEAUX[case.get("time.scheme")]
         self.stepper = make_stepper(self.tableau, self.tendency, self.operator, self.state)

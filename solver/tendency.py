@@ -36,9 +36,9 @@ class PseudoSpectralTendency:
         self.scratch = self.P[0]
         self._mask = None
         self.scale = 1.0 / float(grid.npoints)
-        self.keep = (np.ascontiguousarray(np.abs(grid.nx_index.ravel()) <= grid.cutoff[0]),
-                     np.ascontiguousarray(np.abs(grid.ny_index.ravel()) <= grid.cutoff[1]),
+        self.keep = (grid.keep_x, grid.keep_y,
                      np.ascontiguousarray(grid.nz_index.ravel() <= grid.cutoff[2]))
+        self.band = (grid.keep_x, grid.keep_y, grid.nz_kept)
         self.kvec = (np.ascontiguousarray(grid.kx.ravel()), np.ascontiguousarray(grid.ky.ravel()),
                      np.ascontiguousarray(grid.kz.ravel()))
         self.forcing = self._forcing_modes(forcing)
@@ -84,7 +84,7 @@ class PseudoSpectralTendency:
     def to_physical(self, y: np.ndarray) -> None:
         """Velocity (and temperature) of state ``y`` on the grid, into the work arrays."""
         # one pass makes all three spectral components; each inverse then consumes one
-        kernels.velocity(y[0], y[1], self.basis, self.P[0], self.P[1], self.P[2])
+        kernels.velocity(y[0], y[1], self.basis, self.band, self.P[0], self.P[1], self.P[2])
         for comp in range(3):
             self.fft.inverse(self.P[comp], self.velocity[comp])
         if self.has_T:
