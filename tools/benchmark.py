@@ -5,11 +5,12 @@
 
 Each (model, size, rank count) runs in its own ``mpiexec`` job so that peak
 resident memory is that run's alone. Inside the job: plans are made (with
-wisdom), two warm-up steps are taken, then ``--steps`` steps are timed one by
-one (median reported). The transform floor is the time of the forward and
-inverse transforms one step performs (counted while stepping), executed alone
-with the same transform objects and the step's own work arrays, in the same
-process, also a median. Both are
+wisdom), two warm-up steps are taken and one more counts the transforms a
+step performs; then ``--steps`` steps are timed one by one (median reported),
+each followed by the transform floor: the forward and inverse transforms one
+step performs, executed alone with the same transform objects and the step's
+own work arrays, in the same process, also a median. Alternating the two keeps
+a change of the machine's load from biasing the ratio. Both are
 taken in wall-clock and in CPU time (``process_time``, the slowest rank): on a
 shared machine the CPU-time ratio is the steadier figure. Memory is
 the sum over ranks of the peak resident set (``getrusage``), per grid point,
@@ -67,8 +68,26 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
     sim.advance()
     first = comm.max(time.perf_counter() - t0)
     sim.advance()
+    # transforms per step, counted on one step
     fwd0, inv0 = sim.fft.count_forward, sim.fft.count_inverse
-    times, cpu = [], []
+    sim.advance()
+    n_fwd = sim.fft.count_forward - fwd0
+    n_inv = sim.fft.count_inverse - inv0
+    # the floor uses the step's own arrays in the step's order (inverse into the
+    # velocity (and T) work arrays, forward from the product buffer into the
+    # five product transforms), so that it pays the same cache misses as the step
+    fft, nl = sim.fft, sim.tendency
+    targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
+
+    def transforms_alone():
+        for i in range(n_inv):
+            fft.inverse(nl.scratch, targets[i % len(targets)])
+        for i in range(n_fwd):
+            fft.forward(nl.product, nl.P[i % len(nl.P)])
+
+    # steps and floors alternate, so that a change in the machine's load during
+    # the run weighs on both medians alike (the machine may be shared)
+    times, cpu, floor, floor_cpu = [], [], [], []
     plain_cpu = []  # with diagnostics: the same steps without them, interleaved
     for i in range(steps if series is None else 2 * steps):
         record = series is not None and i % 2 == 0
@@ -82,21 +101,9 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
             continue
         cpu.append(comm.max(time.process_time() - c0))
         times.append(comm.max(time.perf_counter() - t0))
-    n_fwd = (sim.fft.count_forward - fwd0) // steps
-    n_inv = (sim.fft.count_inverse - inv0) // steps
-    # the floor uses the step's own arrays in the step's order (inverse into the
-    # velocity (and T) work arrays, forward into the five product transforms), so
-    # that it pays the same cache misses as the step does
-    fft, nl = sim.fft, sim.tendency
-    targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
-    floor, floor_cpu = [], []
-    for _ in range(steps):
         comm.barrier()
         t0, c0 = time.perf_counter(), time.process_time()
-        for i in range(n_inv):
-            fft.inverse(nl.scratch, targets[i % len(targets)])
-        for i in range(n_fwd):
-            fft.forward(nl.product, nl.P[i % len(nl.P)])
+        transforms_alone()
         floor_cpu.append(comm.max(time.process_time() - c0))
         floor.append(comm.max(time.perf_counter() - t0))
     rss = comm.sum(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024.0)
