@@ -105,22 +105,22 @@ def velocity(a, p, basis, band, u, v, w):
 
 
 # ---------------------------------------------------------------- advection from products
-def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s, c, kh,
+def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, nkz, kx, ky, kz, s, c, kh,
                    out):
-    nx, ny, nz = P0.shape
+    # the band test is per row, so that the inner loop is branch free and vectorises
+    nx, ny = P0.shape[0], P0.shape[1]
     for i in range(nx):
         kxi = kx[i]
         for j in range(ny):
+            if not (keepx[i] and keepy[j]):
+                out[0, i, j, :] = 0.0
+                out[1, i, j, :] = 0.0
+                continue
             kyj = ky[j]
             sij = s[i, j, 0]
             cij = c[i, j, 0]
             khij = kh[i, j, 0]
-            kept = keepx[i] and keepy[j]
-            for k in range(nz):
-                if not (kept and keepz[k]):
-                    out[0, i, j, k] = 0.0
-                    out[1, i, j, k] = 0.0
-                    continue
+            for k in range(nkz):
                 kzk = kz[k]
                 p0, p1, p2, p3, p4 = P0[i, j, k], P1[i, j, k], P2[i, j, k], \
                     P3[i, j, k], P4[i, j, k]
@@ -138,37 +138,40 @@ def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, keepz, kx, ky, kz, s
                 out[0, i, j, k] = complex(sij * nxr - cij * nyr, sij * nxi - cij * nyi)
                 out[1, i, j, k] = complex(be * (cij * nxr + sij * nyr) - al * nzr,
                                           be * (cij * nxi + sij * nyi) - al * nzi)
+            out[0, i, j, nkz:] = 0.0
+            out[1, i, j, nkz:] = 0.0
 
 
-def _scalar_flux_loop(P0, P1, P2, scale, keepx, keepy, keepz, kx, ky, kz, out):
-    nx, ny, nz = P0.shape
+def _scalar_flux_loop(P0, P1, P2, scale, keepx, keepy, nkz, kx, ky, kz, out):
+    nx, ny = P0.shape[0], P0.shape[1]
     for i in range(nx):
         for j in range(ny):
-            kept = keepx[i] and keepy[j]
-            for k in range(nz):
-                if not (kept and keepz[k]):
-                    out[i, j, k] = 0.0
-                    continue
+            if not (keepx[i] and keepy[j]):
+                out[i, j, :] = 0.0
+                continue
+            for k in range(nkz):
                 q0, q1, q2 = P0[i, j, k], P1[i, j, k], P2[i, j, k]
                 sr = kx[i] * q0.real + ky[j] * q1.real + kz[k] * q2.real
                 si = kx[i] * q0.imag + ky[j] * q1.imag + kz[k] * q2.imag
                 out[i, j, k] = complex(si * scale, -sr * scale)
+            out[i, j, nkz:] = 0.0
 
 
 _momentum_nb = _jit(_momentum_loop)
 _scalar_flux_nb = _jit(_scalar_flux_loop)
 
 
-def momentum_advection(P, mask, scale, keep, kvec, basis, out):
+def momentum_advection(P, mask, scale, band, kvec, basis, out):
     """Frame amplitudes of ``-div(u u)`` from the transformed products.
 
     ``P`` is a sequence of five arrays: the unnormalised transforms of
     ``uu-ww, vv-ww, uv, uw, vw``; ``N_i = -i k_j (u_i u_j)_k`` (the dropped ``ww``
-    trace is a gradient), dealiased (``mask`` = D/N, or ``keep`` and ``scale``),
+    trace is a gradient), dealiased (``mask`` = D/N, or ``band`` (Grid.keep_x,
+    keep_y, nz_kept) and ``scale`` = 1/N),
     then ``out[0] = e1 . N``, ``out[1] = e2 . N`` (solver/basis.py).
     """
     if use_numba():
-        _momentum_nb(P[0], P[1], P[2], P[3], P[4], scale, keep[0], keep[1], keep[2],
+        _momentum_nb(P[0], P[1], P[2], P[3], P[4], scale, band[0], band[1], band[2],
                      kvec[0], kvec[1], kvec[2], basis.s, basis.c, basis.kh, out)
         return
     kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
@@ -179,10 +182,10 @@ def momentum_advection(P, mask, scale, keep, kvec, basis, out):
     basis.project(Nx, Ny, Nz, out[0], out[1])
 
 
-def scalar_advection(P, mask, scale, keep, kvec, out):
+def scalar_advection(P, mask, scale, band, kvec, out):
     """``out = -div(u T)`` from the transforms ``P[0..2]`` of ``uT, vT, wT``, dealiased."""
     if use_numba():
-        _scalar_flux_nb(P[0], P[1], P[2], scale, keep[0], keep[1], keep[2],
+        _scalar_flux_nb(P[0], P[1], P[2], scale, band[0], band[1], band[2],
                         kvec[0], kvec[1], kvec[2], out)
         return
     kx, ky, kz = (kvec[0].reshape(-1, 1, 1), kvec[1].reshape(1, -1, 1),
@@ -487,8 +490,8 @@ def warm_up() -> None:
     kv = np.ones(2)
     stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
     _velocity_nb(z, z, one, one, one, kv, keep, keep, 2, z.copy(), z.copy(), z.copy())
-    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, keep, kv, kv, kv, one, one, one, stack2)
-    _scalar_flux_nb(z, z, z, 1.0, keep, keep, keep, kv, kv, kv, z.copy())
+    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, 2, kv, kv, kv, one, one, one, stack2)
+    _scalar_flux_nb(z, z, z, 1.0, keep, keep, 2, kv, kv, kv, z.copy())
     _product_nb(r, r, r.copy())
     _stress_pair_nb(r, r.copy(), r.copy(), r.copy())
     _speed_nb(r, r, r, 1.0, 1.0, 1.0)

@@ -113,7 +113,7 @@ class PseudoSpectralTendency:
                 T = self.temperature
                 for comp in range(3):
                     fwd(kernels.product(self.velocity[comp], T, q), P[comp])
-                kernels.scalar_advection(P, self.mask, self.scale, self.keep, self.kvec, out[2])
+                kernels.scalar_advection(P, self.mask, self.scale, self.band, self.kvec, out[2])
             elif self.has_T:
                 out[2] = 0
             # the velocity is not needed past this point: the last two passes
@@ -125,7 +125,7 @@ class PseudoSpectralTendency:
             kernels.stress_pair(v, w, v, w)   # v <- vv - ww, w <- vw
             fwd(v, P[1])
             fwd(w, P[4])
-            kernels.momentum_advection(P, self.mask, self.scale, self.keep, self.kvec,
+            kernels.momentum_advection(P, self.mask, self.scale, self.band, self.kvec,
                                        self.basis, out)
         for idx, fa, fp in self.forcing:
             out[0][idx] += fa
