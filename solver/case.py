@@ -134,8 +134,8 @@ SCHEMA: dict[str, Key] = {
     "output.snapshot_stride": Key("int", 1, "keep every n-th grid point in snapshots", lower=1),
     "output.spectra_every": Key("float", None, "simulated time between energy spectra",
                                 lower=0, lower_open=True),
-    "compute.threads": Key("int", None, "FFTW threads per rank (default: OMP_NUM_THREADS or 1)",
-                           lower=1),
+    "compute.threads": Key("int", None, "FFTW threads per rank (default: OMP_NUM_THREADS, "
+                           "else the node's cores over its ranks)", lower=1),
     "compute.fftw_effort": Key("choice", "measure", "FFTW planning effort",
                                choices=FFTW_EFFORTS),
     "compute.wisdom": Key("str", "~/.cache/shearmix/fftw-wisdom",

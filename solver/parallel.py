@@ -29,6 +29,9 @@ class SerialComm:
     def bcast(self, obj, root=0):
         return obj
 
+    def ranks_on_node(self) -> int:
+        return 1
+
     def barrier(self):
         pass
 
@@ -66,6 +69,14 @@ class MPIComm:
 
     def bcast(self, obj, root=0):
         return self.comm.bcast(obj, root=root)
+
+    def ranks_on_node(self) -> int:
+        """How many ranks of this communicator share this rank's node (shared memory)."""
+        if not hasattr(self, "_on_node"):
+            local = self.comm.Split_type(self._MPI.COMM_TYPE_SHARED)
+            self._on_node = local.Get_size()
+            local.Free()
+        return self._on_node
 
     def slab_exchange(self, nx_local: int, ny: int, nz: int) -> "SlabExchange":
         """The transpose between x-slabs and y-slabs of complex ``(., ., nz)`` arrays."""

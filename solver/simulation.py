@@ -42,14 +42,28 @@ class BlowUp(RuntimeError):
     """The run diverged: the message says when, which quantity and what to change."""
 
 
-def default_threads(case: Case) -> int:
+def default_threads(case: Case, comm) -> int:
+    """FFTW threads per rank: ``compute.threads``, else ``OMP_NUM_THREADS``, else the
+    cores this process may use shared among the ranks on its node.
+
+    Filling the node is the default because, on one node, FFTW threads did at
+    least as well as ranks (README, Performance); ``mpiexec -n <cores>`` gives
+    one thread per rank, a single process all cores.
+    """
     t = case.get("compute.threads")
     if t:
         return int(t)
+    env = os.environ.get("OMP_NUM_THREADS", "").strip()
+    if env:
+        try:
+            return max(1, int(env))
+        except ValueError:
+            pass
     try:
-        return max(1, int(os.environ.get("OMP_NUM_THREADS", "1")))
-    except ValueError:
-        return 1
+        cores = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        cores = os.cpu_count() or 1
+    return max(1, cores // comm.ranks_on_node())
 
 
 class Simulation:
@@ -69,7 +83,7 @@ class Simulation:
         self.grid = Grid(case.shape, case.lengths, self.comm.rank, self.comm.size)
         wisdom = case.get("compute.wisdom")
         load_wisdom(wisdom, self.comm)
-        self.fft = SlabTransform(self.grid, self.comm, threads=default_threads(case),
+        self.fft = SlabTransform(self.grid, self.comm, threads=default_threads(case, self.comm),
                                  effort=case.get("compute.fftw_effort"))
         save_wisdom(wisdom, self.comm)
         self.basis = CrayaHerring(self.grid)
