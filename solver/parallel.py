@@ -78,6 +78,29 @@ class MPIComm:
             local.Free()
         return self._on_node
 
+    def node_shared_array(self, shape, dtype, align: int = 64) -> np.ndarray | None:
+        """An array in memory shared by all ranks (one MPI-3 shared window), or None.
+
+        None when the ranks do not all share one node, or when
+        ``SHEARMIX_TRANSPOSE=alltoall`` asks for message passing.
+        """
+        if os.environ.get("SHEARMIX_TRANSPOSE", "") == "alltoall":
+            return None
+        if self.ranks_on_node() != self.size:
+            return None
+        MPI = self._MPI
+        dtype = np.dtype(dtype)
+        nbytes = int(np.prod(shape)) * dtype.itemsize + align
+        node = self.comm.Split_type(MPI.COMM_TYPE_SHARED)
+        win = MPI.Win.Allocate_shared(nbytes if self.rank == 0 else 0, 1, comm=node)
+        buf, _ = win.Shared_query(0)
+        raw = np.frombuffer(buf, dtype=np.uint8, count=nbytes)
+        start = (-raw.ctypes.data) % align
+        self._windows = getattr(self, "_windows", []) + [(win, node)]
+        if self.max(start) != self.min(start):  # mapped at different offsets: no common layout
+            return None
+        return raw[start:start + nbytes - align].view(dtype).reshape(shape)
+
     def slab_exchange(self, nx_local: int, ny: int, nz: int) -> "SlabExchange":
         """The transpose between x-slabs and y-slabs of complex ``(., ., nz)`` arrays."""
         return SlabExchange(self, nx_local, ny, nz)

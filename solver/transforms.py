@@ -1,9 +1,12 @@
 """Distributed real-to-complex 3D FFTs on x-slabs, built on FFTW through pyfftw.
 
 Forward: real-to-complex over (y, z) on each x-slab, a global transpose
-(``Alltoall``; the outgoing blocks are described by an MPI vector type rather
-than packed) that gives each rank all x for its ky-columns, then a complex FFT
-over x. Inverse: the same steps backwards. On
+that gives each rank all x for its ky-columns, then a complex FFT over x. When
+all ranks share one node the transpose is no message at all: each rank writes
+its (y, z) transforms into a global array in MPI-3 shared memory and, after a
+barrier, transforms its own ky-columns over x straight out of it. Across nodes
+(or with ``SHEARMIX_TRANSPOSE=alltoall``) it is an ``Alltoall`` whose outgoing
+blocks are described by an MPI vector type rather than packed. Inverse: the same steps backwards. On
 one rank a single 3D plan does it all. Plans are made once; FFTW wisdom is
 read from and saved to a cache file so later runs plan in milliseconds.
 
@@ -84,17 +87,28 @@ class SlabTransform:
                                     direction="FFTW_BACKWARD",
                                     flags=flags + ("FFTW_DESTROY_INPUT",), threads=threads)
         else:
-            nxl, nzc = grid.nx_local, grid.nzc
-            self._mid = pyfftw.empty_aligned((nxl, ny, nzc), dtype=np.complex128)
-            self._exchange = comm.slab_exchange(nxl, ny, nzc)
-            self._fwd_yz = pyfftw.FFTW(self.physical, self._mid, axes=(1, 2),
+            nxl, nyl, nzc = grid.nx_local, grid.ny_local, grid.nzc
+            x0, y0 = grid.x_start, grid.y_start
+            # on one node: two global (kx, ky, kz) arrays in shared memory, used in turn
+            shared = [comm.node_shared_array((nx, ny, nzc), np.complex128) for _ in range(2)]
+            self._shared = shared if all(a is not None for a in shared) else None
+            if self._shared is not None:
+                self._rows = [a[x0:x0 + nxl] for a in self._shared]        # my x-slab
+                self._cols = [a[:, y0:y0 + nyl] for a in self._shared]     # my ky-columns
+                self._turn = 0
+                mid_out, x_in = self._rows[0], self._cols[0]
+            else:
+                self._mid = pyfftw.empty_aligned((nxl, ny, nzc), dtype=np.complex128)
+                self._exchange = comm.slab_exchange(nxl, ny, nzc)
+                mid_out, x_in = self._mid, self.spectral
+            self._fwd_yz = pyfftw.FFTW(self.physical, mid_out, axes=(1, 2),
                                        direction="FFTW_FORWARD", flags=flags, threads=threads)
-            self._inv_yz = pyfftw.FFTW(self._mid, self.physical, axes=(1, 2),
+            self._inv_yz = pyfftw.FFTW(mid_out, self.physical, axes=(1, 2),
                                        direction="FFTW_BACKWARD",
                                        flags=flags + ("FFTW_DESTROY_INPUT",), threads=threads)
-            self._fwd_x = pyfftw.FFTW(self.spectral, self.spectral, axes=(0,),
+            self._fwd_x = pyfftw.FFTW(x_in, self.spectral, axes=(0,),
                                       direction="FFTW_FORWARD", flags=flags, threads=threads)
-            self._inv_x = pyfftw.FFTW(self.spectral, self.spectral, axes=(0,),
+            self._inv_x = pyfftw.FFTW(self.spectral, x_in, axes=(0,),
                                       direction="FFTW_BACKWARD", flags=flags, threads=threads)
         #: transforms performed, for the benchmark's transform floor
         self.count_forward = 0
@@ -113,6 +127,16 @@ class SlabTransform:
             self._fwd.update_arrays(physical, spectral)
             self._fwd.execute()
             return spectral
+        if self._shared is not None:
+            # all ranks write their x-slab into the shared array, then each
+            # transforms its ky-columns over x straight out of it: no message
+            turn = self._next_turn()
+            self._fwd_yz.update_arrays(physical, self._rows[turn])
+            self._fwd_yz.execute()
+            self.comm.barrier()
+            self._fwd_x.update_arrays(self._cols[turn], spectral)
+            self._fwd_x.execute()
+            return spectral
         self._fwd_yz.update_arrays(physical, self._mid)
         self._fwd_yz.execute()
         self._exchange.to_y_slabs(self._mid, spectral)
@@ -120,12 +144,28 @@ class SlabTransform:
         self._fwd_x.execute()
         return spectral
 
+    def _next_turn(self) -> int:
+        # two shared arrays in turn: a rank may start transform t+1 while
+        # another still reads transform t's array; it cannot start t+2 before
+        # everyone has passed t+1's barrier, i.e. finished reading t's array
+        turn = self._turn
+        self._turn ^= 1
+        return turn
+
     def inverse(self, spectral: np.ndarray, physical: np.ndarray) -> np.ndarray:
         """``physical <- IFFT(spectral)`` (sum over modes). Destroys ``spectral``."""
         self.count_inverse += 1
         if self.P == 1:
             self._inv.update_arrays(spectral, physical)
             self._inv.execute()
+            return physical
+        if self._shared is not None:
+            turn = self._next_turn()
+            self._inv_x.update_arrays(spectral, self._cols[turn])
+            self._inv_x.execute()
+            self.comm.barrier()
+            self._inv_yz.update_arrays(self._rows[turn], physical)
+            self._inv_yz.execute()
             return physical
         self._inv_x.update_arrays(spectral, spectral)
         self._inv_x.execute()

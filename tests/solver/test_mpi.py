@@ -21,20 +21,27 @@ pytestmark = [pytest.mark.mpi,
                                  reason="no mpiexec on this machine")]
 
 
-def _launch(nranks, *args):
+def _launch(nranks, *args, transpose=None):
     env = dict(os.environ, OMP_NUM_THREADS="1")
     env.pop("SHEARMIX_SERIAL", None)
+    env.pop("SHEARMIX_TRANSPOSE", None)
+    if transpose:
+        env["SHEARMIX_TRANSPOSE"] = transpose
     cmd = [_mpiexec(), "-n", str(nranks), sys.executable, PROBE, *args]
     res = subprocess.run(cmd, capture_output=True, text=True, timeout=300, env=env)
     assert res.returncode == 0, res.stderr[-2000:]
 
 
+@pytest.mark.parametrize("transpose", ["shared", "alltoall"])
 @pytest.mark.parametrize("nranks", [2, 4])
-def test_distributed_fft_matches_numpy(tmp_path, nranks):
+def test_distributed_fft_matches_numpy(tmp_path, nranks, transpose):
+    """Both transposes: through node-shared memory (the default on one node) and
+    by message passing (what runs across nodes)."""
     out = str(tmp_path / "fft.npz")
-    _launch(nranks, "fft", out)
+    _launch(nranks, "fft", out, transpose=transpose)
     r = np.load(out)
     assert int(r["size"]) == nranks
+    assert str(r["transpose"]) == transpose
     assert r["err_forward"] < 1e-14   # numpy.fft.rfftn is the reference
     assert r["err_inverse"] < 1e-14
 
