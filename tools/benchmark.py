@@ -142,6 +142,19 @@ def launch(model: str, n: int, ranks: int, steps: int, threads: int = 1,
     return json.loads(res.stdout.strip().splitlines()[-1])
 
 
+def combine(runs: list[dict]) -> dict:
+    """One record from repeated launches: medians of the timings, the largest memory."""
+    out = dict(runs[0])
+    for key in ("step_seconds", "floor_seconds", "ratio", "step_cpu_seconds",
+                "floor_cpu_seconds", "ratio_cpu", "first_step_seconds", "setup_seconds"):
+        out[key] = statistics.median(r[key] for r in runs)
+    for key in ("peak_rss_bytes", "bytes_per_point"):
+        out[key] = max(r[key] for r in runs)
+    out["repeats"] = len(runs)
+    out["ratio_runs"] = [r["ratio"] for r in runs]
+    return out
+
+
 def machine() -> str:
     cpu = "unknown CPU"
     try:
@@ -155,6 +168,43 @@ def machine() -> str:
     return f"{cpu}, {os.cpu_count()} cores"
 
 
+def markdown(report: dict) -> str:
+    """The README's performance tables from a ``--json`` report."""
+    lines = [f"shearmix {report['version']} on {report['machine']}.", "",
+             "| model | grid | ranks | s/step | floor s | ratio | cpu ratio | FFTs/step "
+             "| 1st step s | B/pt net |",
+             "|---|---|---|---|---|---|---|---|---|---|"]
+    for r in report["records"]:
+        lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | {r['step_seconds']:.4f} "
+                     f"| {r['floor_seconds']:.4f} | {r['ratio']:.2f} | {r['ratio_cpu']:.2f} "
+                     f"| {r['transforms_per_step']} | {r['first_step_seconds']:.2f} "
+                     f"| {r['bytes_per_point_net']:.0f} |")
+    one = {(r["model"], r["n"]): r for r in report["records"] if r["ranks"] == 1}
+    two = [r for r in report["records"] if r["ranks"] == 2 and (r["model"], r["n"]) in one]
+    if two:
+        lines += ["", "| model | grid | 2-rank / 1-rank step time | over the repeats |",
+                  "|---|---|---|---|"]
+        for r in two:
+            ratio = r.get("step_vs_fewest_ranks",
+                          r["step_seconds"] / one[(r["model"], r["n"])]["step_seconds"])
+            spread = r.get("step_vs_fewest_ranks_runs", [ratio])
+            lines.append(f"| {r['model']} | {r['n']}^3 | {ratio:.2f} "
+                         f"| {min(spread):.2f} - {max(spread):.2f} |")
+    extras = report.get("extras", {})
+    diag = [(k.split("_", 1)[1], v) for k, v in extras.items() if k.startswith("diagnostics_")]
+    if diag:
+        lines += [""] + [f"- diagnostics every step vs every 100 steps, {m} "
+                         f"{v['record']['n']}^3: {100 * (v['slowdown'] - 1):+.1f}%"
+                         for m, v in diag]
+    thr = [(k.split("_", 1)[1], v) for k, v in extras.items() if k.startswith("threads_")]
+    if thr:
+        lines += [""] + [f"- {m} {v['1x1']['n']}^3: 1 rank x 1 thread "
+                         f"{v['1x1']['step_seconds']:.3f} s, 1 rank x 2 threads "
+                         f"{v['1x2']['step_seconds']:.3f} s, 2 ranks x 1 thread "
+                         f"{v['2x1']['step_seconds']:.3f} s" for m, v in thr]
+    return "\n".join(lines) + "\n"
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(prog="scripts/bench", description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[64, 128])
@@ -162,13 +212,21 @@ def main(argv=None) -> int:
     ap.add_argument("--models", nargs="+", default=["lowpe", "boussinesq"],
                     choices=["lowpe", "boussinesq"])
     ap.add_argument("--steps", type=int, default=15, help="timed steps per case (median)")
+    ap.add_argument("--repeats", type=int, default=1,
+                    help="launches per case, rank counts taking turns (medians over them)")
     ap.add_argument("--json", metavar="FILE", help="also write the records as JSON")
     ap.add_argument("--diagnostics", action="store_true",
                     help="also compare diagnostics every step with every 100 steps (largest size)")
     ap.add_argument("--threads", action="store_true",
                     help="also compare 1 rank x 2 FFTW threads with 2 ranks x 1 thread (largest size)")
+    ap.add_argument("--markdown", metavar="JSON",
+                    help="print the README tables of an earlier --json report, run nothing")
     ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
+    if args.markdown:
+        with open(args.markdown) as fh:
+            print(markdown(json.load(fh)), end="")
+        return 0
     if args.worker:
         w = args.worker
         rec = worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]))
@@ -182,11 +240,24 @@ def main(argv=None) -> int:
           f"{'ratio':>6s} {'cpu ratio':>9s} {'FFTs':>5s} {'1st step':>8s} {'B/pt raw':>9s} "
           f"{'B/pt net':>9s}")
     for model in args.models:
-        for ranks in args.ranks:
-            base = launch(model, 16, ranks, 3)["peak_rss_bytes"]
-            for n in args.sizes:
-                r = launch(model, n, ranks, args.steps)
-                r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base) / n ** 3
+        base = {ranks: launch(model, 16, ranks, 3)["peak_rss_bytes"] for ranks in args.ranks}
+        for n in args.sizes:
+            # the rank counts take turns, repeat after repeat, so that a change of
+            # the machine's load falls on all of them (the machine may be shared)
+            runs = {ranks: [] for ranks in args.ranks}
+            for _ in range(args.repeats):
+                for ranks in args.ranks:
+                    runs[ranks].append(launch(model, n, ranks, args.steps))
+            for ranks in args.ranks:
+                r = combine(runs[ranks])
+                r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base[ranks]) / n ** 3
+                if ranks != args.ranks[0]:
+                    # paired: each repeat's run against the first rank count's run of
+                    # the same repeat, which ran just before it
+                    pairs = [x["step_seconds"] / y["step_seconds"]
+                             for x, y in zip(runs[ranks], runs[args.ranks[0]])]
+                    r["step_vs_fewest_ranks"] = statistics.median(pairs)
+                    r["step_vs_fewest_ranks_runs"] = pairs
                 records.append(r)
                 print(f"{model:11s} {n:>4d}^3 {ranks:5d} {r['step_seconds']:9.4f} "
                       f"{r['floor_seconds']:9.4f} {r['ratio']:6.2f} {r['ratio_cpu']:9.2f} "
