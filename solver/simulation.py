@@ -46,8 +46,8 @@ def default_threads(case: Case, comm) -> int:
     """FFTW threads per rank: ``compute.threads``, else ``OMP_NUM_THREADS``, else the
     cores this process may use shared among the ranks on its node.
 
-    Filling the node is the default because, on one node, FFTW threads did at
-    least as well as ranks (README, Performance); ``mpiexec -n <cores>`` gives
+    Filling the node is the default because, on one node, FFTW threads did
+    about as well as ranks (README, Performance); ``mpiexec -n <cores>`` gives
     one thread per rank, a single process all cores.
     """
     t = case.get("compute.threads")
