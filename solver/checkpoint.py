@@ -35,7 +35,7 @@ import numpy as np
 
 from .fileheader import HeaderError, common_attributes, read_header
 from .outputs import EveryTime, Output
-from .slabfile import WriteFailed, agree, write_global
+from .slabfile import prepare_folder, write_global
 
 FOLDER = "checkpoints"
 _NAME = re.compile(r"^chk_(\d{9,})\.h5$")
@@ -279,22 +279,10 @@ class CheckpointOutput(Output):
     def open(self, sim, out_dir, append):
         super().open(sim, out_dir, append)
         self.directory = os.path.join(out_dir, FOLDER)
-        error = None
-        if sim.comm.rank == 0:
-            try:
-                os.makedirs(self.directory, exist_ok=True)
-                if not os.access(self.directory, os.W_OK):
-                    error = "no permission to write there"
-                elif not append:
-                    # a new run replaces the folder's run (shearmix run allows it only with
-                    # output.overwrite): older checkpoints would be taken for its latest
-                    for _, old in list_checkpoints(self.directory):
-                        os.remove(old)
-            except OSError as exc:
-                error = exc.strerror or str(exc)
-        error = agree(sim.comm, error)
-        if error:
-            raise WriteFailed(f"{self.directory}: checkpoints cannot be written ({error})")
+        # a new run replaces the folder's run (shearmix run allows it only with
+        # output.overwrite): older checkpoints would be taken for its latest
+        prepare_folder(sim.comm, self.directory, "checkpoints",
+                       None if append else lambda d: [p for _, p in list_checkpoints(d)])
         if self.cadence is not None:
             self.cadence.start(sim.t, now=False)
         self.last_wall = time.monotonic()

@@ -65,6 +65,29 @@ def agree(comm, message: str | None) -> str | None:
     return next((m for m in messages if m), None)
 
 
+def prepare_folder(comm, path: str, what: str, stale=None) -> None:
+    """Make ``path`` (on rank 0), check it is writable and remove the files
+    ``stale(path)`` lists (a new run replacing the folder's earlier run).
+
+    A failure raises the same :class:`WriteFailed` on every rank:
+    ``"<path>: <what> cannot be written (<reason>)"``.
+    """
+    error = None
+    if comm.rank == 0:
+        try:
+            os.makedirs(path, exist_ok=True)
+            if not os.access(path, os.W_OK):
+                error = "no permission to write there"
+            elif stale is not None:
+                for old in stale(path):
+                    os.remove(old)
+        except OSError as exc:
+            error = exc.strerror or str(exc)
+    error = agree(comm, error)
+    if error:
+        raise WriteFailed(f"{path}: {what} cannot be written ({error})")
+
+
 def _fsync(path: str, directory: bool = False) -> None:
     fd = os.open(path, os.O_RDONLY | (os.O_DIRECTORY if directory else 0))
     try:

@@ -33,7 +33,7 @@ import numpy as np
 
 from .outputs import EveryTime, Output
 from .fileheader import common_attributes
-from .slabfile import WriteFailed, agree, write_global
+from .slabfile import WriteFailed, agree, prepare_folder, write_global
 
 FOLDER = "snapshots"
 COLLECTION = "snapshots.xmf"
@@ -198,19 +198,12 @@ class SnapshotOutput(Output):
     def open(self, sim, out_dir, append):
         super().open(sim, out_dir, append)
         self.directory = os.path.join(out_dir, FOLDER)
-        error = None
-        if sim.comm.rank == 0:
-            try:
-                os.makedirs(self.directory, exist_ok=True)
-                if not append:  # a new run replaces the folder's run and its snapshots
-                    for name in os.listdir(self.directory):
-                        if name.startswith("snap_") or name == COLLECTION:
-                            os.remove(os.path.join(self.directory, name))
-            except OSError as exc:
-                error = exc.strerror or str(exc)
-        error = agree(sim.comm, error)
-        if error:
-            raise WriteFailed(f"{self.directory}: snapshots cannot be written ({error})")
+
+        def earlier_run(d):  # a new run replaces the folder's run and its snapshots
+            return [os.path.join(d, n) for n in os.listdir(d)
+                    if n.startswith("snap_") or n == COLLECTION]
+
+        prepare_folder(sim.comm, self.directory, "snapshots", None if append else earlier_run)
         self.cadence.start(sim.t, now=not append)
 
     def due(self, sim):
