@@ -15,3 +15,17 @@ def test_markdown_tables_and_rank_speed_up():
     text = markdown(report)
     assert "| lowpe | 128^3 | 1 | 0.4000 | 0.3200 | 1.25 |" in text
     assert "| lowpe | 128^3 | 0.55 | 0.55 - 0.55 |" in text  # 0.22 / 0.40
+
+
+def test_worker_counts_the_fewest_transforms_per_stage():
+    """Per explicit stage: 3 inverse (velocity) + 5 forward (the stresses uu-ww, vv-ww,
+    uv, uw, vw; the trace is a gradient) for low-Pé; +1 inverse (T) and +3 forward
+    (uT, vT, wT) for the full model. Common practice for divergence-form advection."""
+    from solver.imex import TABLEAUX
+    from tools.benchmark import worker
+    stages = TABLEAUX["cb3c"].stages
+    for model, per_stage in (("lowpe", 8), ("boussinesq", 12)):
+        rec = worker(model, 16, 2)
+        assert rec["transforms_per_step"] == stages * per_stage
+        assert rec["step_seconds"] > 0 and rec["floor_seconds"] > 0
+        assert rec["bytes_per_point"] > 0
