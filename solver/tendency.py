@@ -33,6 +33,8 @@ class PseudoSpectralTendency:
         self.product = transform.physical
         # transforms of the five products; P[0] doubles as the inverse transforms' input
         self.P = [transform.spectral] + [transform.empty_spectral() for _ in range(4)]
+        for buf in self.P:  # band-pruned transforms leave the rest as it was: finite
+            buf[...] = 0
         self.scratch = self.P[0]
         self._mask = None
         self.scale = 1.0 / float(grid.npoints)
@@ -108,7 +110,8 @@ class PseudoSpectralTendency:
             self._speed_limits()
         if self.advection is not None:
             u, v, w = self.velocity
-            q, P, fwd = self.product, self.P, self.fft.forward
+            # the advection reads the band only: band-pruned forward transforms
+            q, P, fwd = self.product, self.P, self.fft.forward_band
             if self.has_T and self.advection.with_temperature:
                 T = self.temperature
                 for comp in range(3):

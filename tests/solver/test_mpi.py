@@ -44,6 +44,7 @@ def test_distributed_fft_matches_numpy(tmp_path, nranks, transpose):
     assert str(r["transpose"]) == transpose
     assert r["err_forward"] < 1e-14   # numpy.fft.rfftn is the reference
     assert r["err_inverse"] < 1e-14
+    assert r["err_band"] < 1e-12  # same transform, round-off of a different FFTW plan
 
 
 @pytest.mark.parametrize("model", ["lowpe", "boussinesq"])
