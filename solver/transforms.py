@@ -1,13 +1,14 @@
 """Distributed real-to-complex 3D FFTs on x-slabs, built on FFTW through pyfftw.
 
 Forward: real-to-complex over (y, z) on each x-slab, a global transpose
-that gives each rank all x for its ky-columns, then a complex FFT over x. When
-all ranks share one node the transpose is no message at all: each rank writes
-its (y, z) transforms into a global array in MPI-3 shared memory and, after a
-barrier, transforms its own ky-columns over x straight out of it. Across nodes
-(or with ``SHEARMIX_TRANSPOSE=alltoall``) it is an ``Alltoall`` whose outgoing
-blocks are described by an MPI vector type rather than packed. Inverse: the same steps backwards. On
-one rank a single 3D plan does it all. Plans are made once; FFTW wisdom is
+that gives each rank all x for its ky-columns, then a complex FFT over x.
+Inverse: the same steps backwards. When all ranks share one node the
+transpose is no message at all: each rank writes its (y, z) transforms into a
+global array in MPI-3 shared memory and, after a barrier, transforms its own
+ky-columns over x straight out of it. Across nodes (or with
+``SHEARMIX_TRANSPOSE=alltoall``) it is an ``Alltoall`` whose outgoing blocks
+are described by an MPI vector type rather than packed. On one rank a single
+3D plan does it all. Plans are made once; FFTW wisdom is
 read from and saved to a cache file so later runs plan in milliseconds.
 
 :meth:`SlabTransform.forward_band` is the forward transform inside the
@@ -150,17 +151,8 @@ class SlabTransform:
             self._band_yz.update_arrays(physical, spectral)
             self._band_yz.execute()
             source = spectral
-        elif self._shared is not None:
-            turn = self._next_turn()
-            self._fwd_yz.update_arrays(physical, self._rows[turn])
-            self._fwd_yz.execute()
-            self.comm.barrier()
-            source = self._cols[turn]
         else:
-            self._fwd_yz.update_arrays(physical, self._mid)
-            self._fwd_yz.execute()
-            self._exchange.to_y_slabs(self._mid, spectral)
-            source = spectral
+            source = self._columns(physical, spectral)
         for (a, b), plan in zip(self._band_runs, self._band_x):
             plan.update_arrays(source[:, a:b, :nkz], spectral[:, a:b, :nkz])
             plan.execute()
@@ -179,21 +171,25 @@ class SlabTransform:
             self._fwd.update_arrays(physical, spectral)
             self._fwd.execute()
             return spectral
+        source = self._columns(physical, spectral)
+        self._fwd_x.update_arrays(source, spectral)
+        self._fwd_x.execute()
+        return spectral
+
+    def _columns(self, physical: np.ndarray, spectral: np.ndarray) -> np.ndarray:
+        """(y, z) transforms and the transpose; returns the array holding this
+        rank's ky-columns over all x (the shared array, or ``spectral``)."""
         if self._shared is not None:
             # all ranks write their x-slab into the shared array, then each
-            # transforms its ky-columns over x straight out of it: no message
+            # reads its ky-columns straight out of it: no message
             turn = self._next_turn()
             self._fwd_yz.update_arrays(physical, self._rows[turn])
             self._fwd_yz.execute()
             self.comm.barrier()
-            self._fwd_x.update_arrays(self._cols[turn], spectral)
-            self._fwd_x.execute()
-            return spectral
+            return self._cols[turn]
         self._fwd_yz.update_arrays(physical, self._mid)
         self._fwd_yz.execute()
         self._exchange.to_y_slabs(self._mid, spectral)
-        self._fwd_x.update_arrays(spectral, spectral)
-        self._fwd_x.execute()
         return spectral
 
     def _next_turn(self) -> int:
