@@ -1,6 +1,7 @@
-"""Shared helpers: small cases built in code, without files."""
+"""Shared helpers: small cases built in code, without files; the CLI in a child process."""
 import copy
 import os
+import subprocess
 import sys
 
 import pytest
@@ -39,3 +40,15 @@ def make_case():
             base["parameters"] = {}
         return case_from_dict(merge(base, sections))
     return _make
+
+
+@pytest.fixture
+def cli_process():
+    """``shearmix`` in a fresh serial Python process; ``pre`` is code run first
+    (e.g. to make a module unimportable or to kill the process mid-write)."""
+    def run(*args, cwd, pre=""):
+        code = f"{pre}\nimport sys\nfrom tools.cli import main\nsys.exit(main(sys.argv[1:]))"
+        env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
+        return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
+                              capture_output=True, text=True, timeout=120)
+    return run

@@ -1,13 +1,10 @@
 """``shearmix run --restart`` and ``shearmix info`` as a user meets them (subprocesses)."""
 import os
 import subprocess
-import sys
 
 import h5py
 import numpy as np
 import pytest
-
-ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 CASE = """
 name: tiny
@@ -31,13 +28,6 @@ def _crc(block):
     return _real(block)
 ck._columns_crc = _crc
 """
-
-
-def _cli(*args, cwd, pre=""):
-    code = f"{pre}\nimport sys\nfrom tools.cli import main\nsys.exit(main(sys.argv[1:]))"
-    env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
-    return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
-                          capture_output=True, text=True, timeout=120)
 
 
 @pytest.fixture
@@ -70,16 +60,17 @@ def _snapshot_state(folder):
     return {p: p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
-def test_killed_mid_write_then_restart_latest_continues_from_previous(case_file, tmp_path):
-    r = _cli("run", str(case_file), "-o", "out", "--set", "time.max_steps=40", cwd=tmp_path,
-             pre=KILL_SECOND_WRITE)
+def test_killed_mid_write_then_restart_latest_continues_from_previous(cli_process, case_file,
+                                                                      tmp_path):
+    r = cli_process("run", str(case_file), "-o", "out", "--set", "time.max_steps=40", cwd=tmp_path,
+                    pre=KILL_SECOND_WRITE)
     assert r.returncode == 9, r.stdout + r.stderr
     out = tmp_path / "out"
     (only,) = _checkpoints(out)
     partial = [n for n in os.listdir(out / "checkpoints") if n.endswith(".tmp")]
     assert partial and partial[0] != only  # the second write never got its name
     step = int(only[4:13])
-    r = _cli("run", str(case_file), "-o", "out", "--restart", "latest", cwd=tmp_path)
+    r = cli_process("run", str(case_file), "-o", "out", "--restart", "latest", cwd=tmp_path)
     assert r.returncode == 0, r.stderr
     assert f"restarting from out/checkpoints/{only} at step {step}" in r.stdout
     with h5py.File(out / "timeseries.h5") as fh:

@@ -1,12 +1,6 @@
 """The command line: run, check, exit codes, and nothing written on bad input."""
-import os
-import subprocess
-import sys
-
 import h5py
 import pytest
-
-ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 CASE = """
 name: tiny
@@ -19,13 +13,6 @@ compute: {fftw_effort: estimate, wisdom: ''}
 """
 
 
-def _cli(*args, cwd, pre=""):
-    code = f"{pre}import sys; from tools.cli import main; sys.exit(main(sys.argv[1:]))"
-    env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
-    return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
-                          capture_output=True, text=True, timeout=120)
-
-
 @pytest.fixture
 def case_file(tmp_path):
     p = tmp_path / "tiny.yaml"
@@ -33,8 +20,8 @@ def case_file(tmp_path):
     return p
 
 
-def test_check_prints_derived_quantities(case_file, tmp_path):
-    r = _cli("check", str(case_file), "--set", "forcing.amplitude=unit", cwd=tmp_path)
+def test_check_prints_derived_quantities(cli_process, case_file, tmp_path):
+    r = cli_process("check", str(case_file), "--set", "forcing.amplitude=unit", cwd=tmp_path)
     assert r.returncode == 0, r.stderr
     assert "laminar amplitude U_L" in r.stdout and "50" in r.stdout
     assert "allowed rank counts" in r.stdout and "1, 2, 4, 8, 16" in r.stdout
@@ -42,8 +29,9 @@ def test_check_prints_derived_quantities(case_file, tmp_path):
     assert not (tmp_path / "runs").exists()
 
 
-def test_run_writes_series_with_case_and_version(case_file, tmp_path):
-    r = _cli("run", str(case_file), "--output", "out", "--set", "parameters.BPe=2", cwd=tmp_path)
+def test_run_writes_series_with_case_and_version(cli_process, case_file, tmp_path):
+    r = cli_process("run", str(case_file), "--output", "out", "--set", "parameters.BPe=2",
+                    cwd=tmp_path)
     assert r.returncode == 0, r.stderr
     assert "step      12" in r.stdout and "steps/s" in r.stdout
     with h5py.File(tmp_path / "out" / "timeseries.h5") as fh:
@@ -53,35 +41,36 @@ def test_run_writes_series_with_case_and_version(case_file, tmp_path):
     assert "BPe: 2" in (tmp_path / "out" / "case.yaml").read_text()
 
 
-def test_bad_input_exits_2_and_writes_nothing(case_file, tmp_path):
-    r = _cli("run", str(case_file), "--set", "parameters.Re=-3", "--output", "bad", cwd=tmp_path)
+def test_bad_input_exits_2_and_writes_nothing(cli_process, case_file, tmp_path):
+    r = cli_process("run", str(case_file), "--set", "parameters.Re=-3", "--output", "bad",
+                    cwd=tmp_path)
     assert r.returncode == 2
     assert r.stderr.strip().count("\n") == 0 and "parameters.Re" in r.stderr
     assert not (tmp_path / "bad").exists()
-    r = _cli("run", str(tmp_path / "absent.yaml"), cwd=tmp_path)
+    r = cli_process("run", str(tmp_path / "absent.yaml"), cwd=tmp_path)
     assert r.returncode == 2 and "cannot read case file" in r.stderr
 
 
-def test_existing_results_are_not_replaced(case_file, tmp_path):
-    assert _cli("run", str(case_file), "-o", "r1", cwd=tmp_path).returncode == 0
+def test_existing_results_are_not_replaced(cli_process, case_file, tmp_path):
+    assert cli_process("run", str(case_file), "-o", "r1", cwd=tmp_path).returncode == 0
     series = tmp_path / "r1" / "timeseries.h5"
     before = series.read_bytes()
-    r = _cli("run", str(case_file), "-o", "r1", cwd=tmp_path)
+    r = cli_process("run", str(case_file), "-o", "r1", cwd=tmp_path)
     assert r.returncode == 2 and "already holds a run" in r.stderr
     assert series.read_bytes() == before
 
 
-def test_blow_up_stops_with_message_and_code_3(case_file, tmp_path):
-    r = _cli("run", str(case_file), "-o", "boom", "--set", "time.adaptive=false",
+def test_blow_up_stops_with_message_and_code_3(cli_process, case_file, tmp_path):
+    r = cli_process("run", str(case_file), "-o", "boom", "--set", "time.adaptive=false",
              "--set", "time.dt=50", "--set", "parameters.Re=1e6",
              "--set", "initial.amplitude=0.5", "--set", "time.max_steps=200", cwd=tmp_path)
     assert r.returncode == 3, r.stdout + r.stderr
     assert "blow-up at step" in r.stdout and "time.cfl" in r.stdout
 
 
-def test_serial_run_without_mpi4py(case_file, tmp_path):
+def test_serial_run_without_mpi4py(cli_process, case_file, tmp_path):
     # mpi4py made unimportable: the engine must fall back to one rank
-    r = _cli("run", str(case_file), "-o", "nompi", cwd=tmp_path,
-             pre="import sys; sys.modules['mpi4py'] = None; ")
+    r = cli_process("run", str(case_file), "-o", "nompi", cwd=tmp_path,
+                    pre="import sys; sys.modules['mpi4py'] = None; ")
     assert r.returncode == 0, r.stderr
     assert "1 rank(s)" in r.stdout

@@ -55,7 +55,7 @@ class Box:
 
 
 @dataclasses.dataclass
-class BoxMode:
+class BoxMode(maps.Eigenvalue):
     i: int
     j: int
     l: int
@@ -66,14 +66,6 @@ class BoxMode:
     M: int
     converged: bool
     change: float
-
-    @property
-    def growth(self):
-        return float(self.sigma.real)
-
-    @property
-    def frequency(self):
-        return float(abs(self.sigma.imag))
 
 
 @dataclasses.dataclass

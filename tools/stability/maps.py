@@ -128,8 +128,20 @@ def growth_map(params: FlowParams, kx, kz, ky0: float = 0.0, M: int | None = Non
     return GrowthMap(params, kx, kz, float(ky0), sigma, int(M), check, time.perf_counter() - t0)
 
 
+class Eigenvalue:
+    """Growth rate and frequency of a mode's eigenvalue ``sigma`` (a ``sigma`` field)."""
+
+    @property
+    def growth(self):
+        return float(self.sigma.real)
+
+    @property
+    def frequency(self):
+        return float(abs(self.sigma.imag))
+
+
 @dataclasses.dataclass
-class Optimum:
+class Optimum(Eigenvalue):
     """Most unstable mode found by :func:`most_unstable`."""
 
     params: FlowParams
@@ -141,13 +153,6 @@ class Optimum:
     change: float
     evaluations: int
 
-    @property
-    def growth(self):
-        return float(self.sigma.real)
-
-    @property
-    def frequency(self):
-        return float(abs(self.sigma.imag))
 
 
 def most_unstable(params: FlowParams, kx_bounds, kz_bounds=(0.0, 0.0), start=None,
