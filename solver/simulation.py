@@ -143,10 +143,7 @@ class Simulation:
 
     def physical(self):
         """Local physical slabs ``(u, v, w, T or None)`` of the current state (copies)."""
-        self.tendency.to_physical(self.state)
-        u, v, w = (f.copy() for f in self.tendency.velocity)
-        T = self.tendency.temperature.copy() if "T" in self.fields else None
-        return u, v, w, T
+        return self.tendency.physical_fields(self.state)
 
     def add_mode(self, nx: int, ny: int, nz: int, component: str, amplitude: float) -> None:
         """Add ``amplitude * e cos(k.x)`` with ``e`` the frame vector of ``component`` at k."""

@@ -15,6 +15,12 @@ read from and saved to a cache file so later runs plan in milliseconds.
 2/3-rule band only (what the advection needs): its x-FFT skips the columns
 outside the band.
 
+:meth:`SlabTransform.round_trip` is what one advection evaluation needs in
+one sweep: inverse transforms, a pointwise pass on the grid and band-pruned
+forward transforms, a block of x-planes at a time, so that the physical
+fields live only in cache-sized blocks instead of full arrays that stream
+through memory between the transforms and the products.
+
 Normalisation: :meth:`SlabTransform.forward` returns ``N * f_k`` (unnormalised
 FFTW output); callers fold ``1/N`` into their dealiasing mask.
 :meth:`SlabTransform.inverse` takes ``f_k`` and returns ``f(x)``.
@@ -28,6 +34,29 @@ import numpy as np
 import pyfftw
 
 from .grid import Grid
+
+#: bytes of one physical block of the round trip (a few fit in a core's L2 cache)
+BLOCK_BYTES = 256 * 1024
+
+#: assumed when the machine does not say (a common server L3 size)
+DEFAULT_CACHE_BYTES = 32 * 1024 ** 2
+
+
+def last_level_cache_bytes(base: str = "/sys/devices/system/cpu/cpu0/cache") -> int:
+    """Size of this CPU's largest cache, from Linux sysfs (``DEFAULT_CACHE_BYTES`` if unknown)."""
+    best = 0
+    try:
+        for entry in os.listdir(base):
+            if not entry.startswith("index"):
+                continue
+            with open(os.path.join(base, entry, "size")) as fh:
+                text = fh.read().strip()
+            scale = {"K": 1024, "M": 1024 ** 2, "G": 1024 ** 3}.get(text[-1:], 1)
+            best = max(best, int(text.rstrip("KMG")) * scale)
+    except (OSError, ValueError):
+        best = 0
+    return best or DEFAULT_CACHE_BYTES
+
 
 _EFFORT_FLAG = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE",
                 "patient": "FFTW_PATIENT"}
@@ -116,10 +145,14 @@ class SlabTransform:
             self._inv_x = pyfftw.FFTW(self.spectral, x_in, axes=(0,),
                                       direction="FFTW_BACKWARD", flags=flags, threads=threads)
         self._make_band_plans(flags, threads)
+        self._flags, self._threads = flags, threads
+        self._trip = None          # round-trip plans and blocks, made on first use
+        self._dirty = False        # a plain transform used the shared arrays since the last round trip
         #: transforms performed, for the benchmark's transform floor
         self.count_forward = 0
         self.count_forward_band = 0
         self.count_inverse = 0
+        self.count_round_trips = 0
 
     def _make_band_plans(self, flags, threads) -> None:
         """Plans of :meth:`forward_band`: the x-FFT over the kept (ky, kz) columns only."""
@@ -183,6 +216,7 @@ class SlabTransform:
             # all ranks write their x-slab into the shared array, then each
             # reads its ky-columns straight out of it: no message
             turn = self._next_turn()
+            self._dirty = True
             self._fwd_yz.update_arrays(physical, self._rows[turn])
             self._fwd_yz.execute()
             self.comm.barrier()
@@ -209,6 +243,7 @@ class SlabTransform:
             return physical
         if self._shared is not None:
             turn = self._next_turn()
+            self._dirty = True
             self._inv_x.update_arrays(spectral, self._cols[turn])
             self._inv_x.execute()
             self.comm.barrier()
@@ -221,3 +256,134 @@ class SlabTransform:
         self._inv_yz.update_arrays(self._mid, physical)
         self._inv_yz.execute()
         return physical
+
+    # ------------------------------------------------------------ round trip
+    def round_trip(self, inputs, outputs, pointwise=None) -> None:
+        """Inverse transforms, a pointwise pass on the grid, band-pruned forward transforms.
+
+        The ``m`` arrays of ``inputs`` (spectral, destroyed) are brought to the
+        grid a block of x-planes at a time into ``blocks[0..m-1]``;
+        ``pointwise(blocks)`` (if given) then leaves in ``blocks[j]`` the field
+        whose forward transform goes to ``outputs[j]`` (correct inside the
+        2/3-rule band, undefined elsewhere, as :meth:`forward_band`). The same
+        transforms as ``m`` :meth:`inverse` and ``k`` :meth:`forward_band`
+        calls, but the physical fields never exist as full arrays: the
+        products read them from cache. An output may be one of the inputs.
+        """
+        m, k = len(inputs), len(outputs)
+        trip = self._trip
+        if trip is None or len(trip["blocks"]) < max(m, k):
+            raise RuntimeError(f"round_trip of {max(m, k)} fields needs "
+                               f"prepare_round_trip({max(m, k)}) first")
+        self.count_round_trips += 1
+        self.count_inverse += m
+        self.count_forward += k
+        self.count_forward_band += k
+        blocks, rows, nb = trip["blocks"], trip["rows"], trip["planes"]
+        if self.P == 1:
+            # x first, in place: the (y, z) transforms of each block then read the
+            # inputs' own rows, and the outputs' rows take the forward results
+            for spec in inputs:
+                trip["x_inverse"].update_arrays(spec, spec)
+                trip["x_inverse"].execute()
+            rows_in, rows_out = inputs, outputs
+        elif self._shared is not None:
+            if self._dirty:
+                self.comm.barrier()   # a plain transform may still be reading
+            for spec, cols in zip(inputs, trip["cols"]):
+                self._inv_x.update_arrays(spec, cols)
+                self._inv_x.execute()
+            self.comm.barrier()
+            rows_in = rows_out = rows
+        else:
+            for spec, mid in zip(inputs, rows):
+                self._inv_x.update_arrays(spec, spec)
+                self._inv_x.execute()
+                self._exchange.to_x_slabs(spec, mid)
+            rows_in = rows_out = rows
+        inv_yz, fwd_yz = trip["yz_inverse"], trip["yz_forward"]
+        for i0 in range(0, self.grid.nx_local, nb):
+            for spec, block in zip(rows_in, blocks):
+                inv_yz.update_arrays(spec[i0:i0 + nb], block)
+                inv_yz.execute()
+            if pointwise is not None:
+                pointwise(blocks)
+            for block, spec in zip(blocks, rows_out):
+                fwd_yz.update_arrays(block, spec[i0:i0 + nb])
+                fwd_yz.execute()
+        if self.P == 1:
+            sources = outputs
+        elif self._shared is not None:
+            self.comm.barrier()
+            sources = trip["cols"]
+        else:
+            for mid, spec in zip(rows, outputs):
+                self._exchange.to_y_slabs(mid, spec)
+            sources = outputs
+        nkz = self.grid.nz_kept
+        for source, spec in zip(sources, outputs):
+            for (a, b), plan in zip(self._band_runs, self._band_x):
+                plan.update_arrays(source[:, a:b, :nkz], spec[:, a:b, :nkz])
+                plan.execute()
+        if self.P > 1 and self._shared is not None:
+            # nobody may write these shared arrays while another rank reads them
+            self.comm.barrier()
+            self._dirty = False
+
+    @property
+    def block_planes(self) -> int:
+        """x-planes per block of :meth:`round_trip`: the largest divisor of the
+        local plane count whose real block fits in :data:`BLOCK_BYTES`."""
+        g = self.grid
+        plane = g.shape[1] * g.shape[2] * 8
+        fits = [b for b in range(1, g.nx_local + 1)
+                if g.nx_local % b == 0 and b * plane <= BLOCK_BYTES]
+        return max(fits) if fits else 1
+
+    def prepare_round_trip(self, count: int) -> None:
+        """Plans and work blocks for round trips of up to ``count`` fields.
+
+        Collective on all ranks. Planning overwrites ``self.spectral`` (and the
+        shared arrays): call it before those hold data.
+        """
+        trip = self._trip
+        if trip is not None and len(trip["blocks"]) >= count:
+            return
+        g, flags, threads = self.grid, self._flags, self._threads
+        nb = self.block_planes
+        nxl, ny, nzc = g.nx_local, g.shape[1], g.nzc
+        blocks = [pyfftw.empty_aligned((nb, ny, g.shape[2]), dtype=np.float64)
+                  for _ in range(count)]
+        trip = {"planes": nb, "blocks": blocks}
+        if self.P == 1:
+            trip["x_inverse"] = pyfftw.FFTW(self.spectral, self.spectral, axes=(0,),
+                                            direction="FFTW_BACKWARD", flags=flags,
+                                            threads=threads)
+            rows = [self.spectral]
+        elif self._shared is not None:
+            # the two arrays of the plain transforms, and more when needed
+            extra = [self.comm.node_shared_array((g.shape[0], ny, nzc), np.complex128)
+                     for _ in range(count - len(self._shared))]
+            if any(a is None for a in extra):
+                raise RuntimeError("MPI could not make the round trip's shared arrays")
+            arrays = self._shared + extra
+            x0, y0 = g.x_start, g.y_start
+            rows = [a[x0:x0 + nxl] for a in arrays]
+            trip["cols"] = [a[:, y0:y0 + g.ny_local] for a in arrays]
+            self._dirty = True  # planning wrote into them: synchronise before first use
+        else:
+            rows = [pyfftw.empty_aligned((nxl, ny, nzc), dtype=np.complex128)
+                    for _ in range(count)]
+        trip["rows"] = rows
+        # a block's rows start at a multiple of the plane size: plan unaligned if
+        # that is not a multiple of the SIMD alignment
+        aligned = (nb * ny * nzc * 16) % pyfftw.simd_alignment == 0
+        bflags = flags if aligned else flags + ("FFTW_UNALIGNED",)
+        trip["yz_inverse"] = pyfftw.FFTW(rows[0][:nb], blocks[0], axes=(1, 2),
+                                         direction="FFTW_BACKWARD",
+                                         flags=bflags + ("FFTW_DESTROY_INPUT",),
+                                         threads=threads)
+        trip["yz_forward"] = pyfftw.FFTW(blocks[0], rows[0][:nb], axes=(1, 2),
+                                         direction="FFTW_FORWARD", flags=bflags,
+                                         threads=threads)
+        self._trip = trip

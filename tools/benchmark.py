@@ -69,23 +69,35 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
     first = comm.max(time.perf_counter() - t0)
     sim.advance()
     # transforms per step, counted on one step
-    fwd0, inv0 = sim.fft.count_forward, sim.fft.count_inverse
-    band0 = sim.fft.count_forward_band
-    sim.advance()
-    n_fwd = sim.fft.count_forward - fwd0
-    n_inv = sim.fft.count_inverse - inv0
-    n_band = sim.fft.count_forward_band - band0  # of n_fwd, pruned to the dealiased band
-    # the floor uses the step's own arrays in the step's order (inverse into the
-    # velocity (and T) work arrays, forward from the product buffer into the
-    # five product transforms), so that it pays the same cache misses as the step
     fft, nl = sim.fft, sim.tendency
-    targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
+    fwd0, inv0, band0, trips0 = (fft.count_forward, fft.count_inverse, fft.count_forward_band,
+                                 fft.count_round_trips)
+    sim.advance()
+    n_fwd = fft.count_forward - fwd0
+    n_inv = fft.count_inverse - inv0
+    n_band = fft.count_forward_band - band0  # of n_fwd, pruned to the dealiased band
+    n_trips = fft.count_round_trips - trips0
+    # the floor uses the step's own arrays in the step's order, so that it pays
+    # the same cache misses as the step
+    if n_trips:
+        # block-wise pass: the same round trips without the products
+        m, k = n_inv // n_trips, n_fwd // n_trips
+        if (m * n_trips, k * n_trips, n_band) != (n_inv, n_fwd, n_fwd):
+            raise RuntimeError("a step mixed round trips and plain transforms")
 
-    def transforms_alone():
-        for i in range(n_inv):
-            fft.inverse(nl.scratch, targets[i % len(targets)])
-        for i in range(n_fwd):
-            (fft.forward_band if i < n_band else fft.forward)(nl.product, nl.P[i % len(nl.P)])
+        def transforms_alone():
+            for _ in range(n_trips):
+                fft.round_trip(nl.P[:m], nl.P[:k])
+    else:
+        # whole-array pass: inverse into the velocity (and T) work arrays,
+        # forward from the product buffer into the product transforms
+        targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
+
+        def transforms_alone():
+            for i in range(n_inv):
+                fft.inverse(nl.scratch, targets[i % len(targets)])
+            for i in range(n_fwd):
+                (fft.forward_band if i < n_band else fft.forward)(nl.product, nl.P[i % len(nl.P)])
 
     # steps and floors alternate, so that a change in the machine's load during
     # the run weighs on both medians alike (the machine may be shared)
@@ -123,6 +135,7 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
             "floor_seconds": fl, "ratio": step / fl, "step_cpu_seconds": step_cpu,
             "floor_cpu_seconds": fl_cpu, "ratio_cpu": step_cpu / fl_cpu,
             "transforms_per_step": n_fwd + n_inv,
+            "physical_pass": "blocks" if n_trips else "whole",
             "first_step_seconds": first, "setup_seconds": setup,
             "peak_rss_bytes": rss, "bytes_per_point": rss / n ** 3}
 

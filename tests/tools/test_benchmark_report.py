@@ -1,4 +1,6 @@
 """The benchmark's README tables are computed from its JSON records."""
+import pytest
+
 from tools.benchmark import markdown
 
 
@@ -17,15 +19,18 @@ def test_markdown_tables_and_rank_speed_up():
     assert "| lowpe | 128^3 | 0.55 | 0.55 - 0.55 |" in text  # 0.22 / 0.40
 
 
-def test_worker_counts_the_fewest_transforms_per_stage():
+@pytest.mark.parametrize("physical_pass", ["whole", "blocks"])
+def test_worker_counts_the_fewest_transforms_per_stage(monkeypatch, physical_pass):
     """Per explicit stage: 3 inverse (velocity) + 5 forward (the stresses uu-ww, vv-ww,
     uv, uw, vw; the trace is a gradient) for low-Pé; +1 inverse (T) and +3 forward
     (uT, vT, wT) for the full model. Common practice for divergence-form advection."""
     from solver.imex import TABLEAUX
     from tools.benchmark import worker
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", physical_pass)
     stages = TABLEAUX["cb3c"].stages
     for model, per_stage in (("lowpe", 8), ("boussinesq", 12)):
         rec = worker(model, 16, 2)
+        assert rec["physical_pass"] == physical_pass
         assert rec["transforms_per_step"] == stages * per_stage
         assert rec["step_seconds"] > 0 and rec["floor_seconds"] > 0
         assert rec["bytes_per_point"] > 0

@@ -1,0 +1,120 @@
+"""The block-wise round trip (inverse, pointwise products, band-pruned forward)
+against numpy.fft, and the tendency made by blocks against the whole-array pass."""
+import numpy as np
+import pytest
+
+from solver import tendency as tendency_module
+from solver import transforms
+from solver.grid import Grid
+from solver.parallel import SerialComm
+from solver.simulation import Simulation
+from solver.transforms import SlabTransform
+
+
+def _products(blocks):
+    a, b, c = blocks[0], blocks[1], blocks[2]
+    blocks[3][...] = a * b
+    blocks[4][...] = a * a - c * c
+    np.multiply(b, c, out=c)   # an output written over an input
+
+
+@pytest.mark.parametrize("shape", [(12, 8, 10), (16, 18, 8)])
+def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
+    # blocks of two x-planes, so that the sweep really goes block by block
+    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    grid = Grid(shape, (1.0, 2.0, 3.0))
+    fft = SlabTransform(grid, SerialComm(), effort="estimate")
+    fft.prepare_round_trip(5)
+    assert fft.block_planes == 2
+    rng = np.random.default_rng(5)
+    fields = [rng.standard_normal(shape) for _ in range(3)]
+    spec = [fft.empty_spectral() for _ in range(5)]
+    for s, f in zip(spec, fields):
+        s[...] = np.fft.rfftn(f) / f.size   # normalised amplitudes, as the tendency's
+    fft.round_trip(spec[:3], spec, _products)
+    u, v, w = fields
+    expected = [u, v, v * w, u * v, u * u - w * w]
+    keep = np.broadcast_to(grid.dealias, spec[0].shape)
+    for got, field in zip(spec, expected):
+        ref = np.fft.rfftn(field)   # numpy's FFT of the whole product is the reference
+        assert np.abs(got - ref)[keep].max() < 1e-12 * np.abs(ref).max()
+    assert (fft.count_round_trips, fft.count_inverse, fft.count_forward) == (1, 3, 5)
+    assert fft.count_forward_band == 5
+
+
+def test_round_trip_needs_its_plans():
+    fft = SlabTransform(Grid((8, 8, 8), (1.0, 1.0, 1.0)), SerialComm(), effort="estimate")
+    with pytest.raises(RuntimeError, match="prepare_round_trip"):
+        fft.round_trip([fft.spectral], [fft.spectral])
+
+
+def _tendency_both_ways(make_case, monkeypatch, model, params):
+    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 12},
+                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
+    out = {}
+    for kind in ("whole", "blocks"):
+        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        sim = Simulation(case)
+        assert sim.tendency.blocks == (kind == "blocks")
+        sim.tendency.want_speed = True
+        n = sim.tendency(sim.state.copy(), 0.0, np.empty_like(sim.state))
+        out[kind] = (n.copy(), sim.tendency.cfl_rate, sim.tendency.max_speed,
+                     sim.physical())
+    return out
+
+
+@pytest.mark.parametrize("model,params", [("lowpe", {"Re": 50.0, "BPe": 2.0}),
+                                          ("boussinesq", {"Re": 50.0, "B": 2.0, "Pr": 0.5})])
+def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, monkeypatch, model, params):
+    out = _tendency_both_ways(make_case, monkeypatch, model, params)
+    (nw, cw, sw, fw), (nb, cb, sb, fb) = out["whole"], out["blocks"]
+    scale = np.abs(nw).max()
+    assert scale > 1e-3
+    assert np.abs(nb - nw).max() < 1e-12 * scale
+    assert cw > 0 and abs(cb - cw) < 1e-12 * cw
+    assert abs(sb - sw) < 1e-12 * sw
+    for a, b in zip(fw, fb):
+        if a is None:
+            assert b is None
+        else:
+            assert np.abs(a - b).max() < 1e-12 * max(np.abs(a).max(), 1.0)
+
+
+def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
+    case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
+                     grid={"Nx": 16, "Ny": 16, "Nz": 8},
+                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
+    states = {}
+    for kind in ("whole", "blocks"):
+        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        sim = Simulation(case)
+        for _ in range(20):
+            sim.advance()
+        states[kind] = (sim.state.copy(), sim.t)
+    (a, ta), (b, tb) = states["whole"], states["blocks"]
+    assert ta == pytest.approx(tb, rel=1e-12)
+    assert np.abs(a - b).max() < 1e-10 * np.abs(a).max()
+
+
+def test_physical_pass_follows_the_cache(monkeypatch):
+    grid = Grid((64, 64, 64), (1.0, 1.0, 1.0))
+    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
+    field = 64 ** 3 * 8
+    monkeypatch.setattr(tendency_module, "last_level_cache_bytes", lambda: 5 * field)
+    assert tendency_module.physical_pass(grid, 5, 1) == "whole"
+    assert tendency_module.physical_pass(grid, 8, 1) == "blocks"
+    assert tendency_module.physical_pass(grid, 5, 2) == "blocks"  # ranks share the cache
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
+    assert tendency_module.physical_pass(grid, 8, 2) == "whole"
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
+    with pytest.raises(ValueError, match="SHEARMIX_PHYSICAL_PASS='tiles'.*blocks, whole"):
+        tendency_module.physical_pass(grid, 5, 1)
+
+
+def test_cache_size_read_from_sysfs(tmp_path):
+    for name, size in (("index0", "32K"), ("index2", "512K"), ("index3", "16384K")):
+        (tmp_path / name).mkdir()
+        (tmp_path / name / "size").write_text(size + "\n")
+    assert transforms.last_level_cache_bytes(str(tmp_path)) == 16 * 1024 ** 2
+    missing = str(tmp_path / "nothing")
+    assert transforms.last_level_cache_bytes(missing) == transforms.DEFAULT_CACHE_BYTES
