@@ -29,6 +29,10 @@ from .transforms import SlabTransform, last_level_cache_bytes
 PASS_CHOICES = ("blocks", "whole")
 
 
+class PhysicalPassError(ValueError):
+    """An unknown ``SHEARMIX_PHYSICAL_PASS``; the message is one line."""
+
+
 def physical_pass(grid: Grid, fields: int, ranks_on_node: int) -> str:
     """``'blocks'`` when ``fields`` physical fields of all ranks on a node overflow
     the last-level cache, else ``'whole'`` (``SHEARMIX_PHYSICAL_PASS`` overrides).
@@ -41,7 +45,7 @@ def physical_pass(grid: Grid, fields: int, ranks_on_node: int) -> str:
     choice = os.environ.get("SHEARMIX_PHYSICAL_PASS", "")
     if choice:
         if choice not in PASS_CHOICES:
-            raise ValueError(f"SHEARMIX_PHYSICAL_PASS={choice!r}: allowed are "
+            raise PhysicalPassError(f"SHEARMIX_PHYSICAL_PASS={choice!r}: allowed are "
                              f"{', '.join(PASS_CHOICES)}")
         return choice
     nx, ny, nz = grid.physical_shape

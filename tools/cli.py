@@ -151,9 +151,10 @@ def cmd_run(args) -> int:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
     from solver.simulation import Simulation
+    from solver.tendency import PhysicalPassError
     try:
         sim = Simulation(case, comm, initial=checked is None)
-    except (InitialStateError, GridError, CaseError) as exc:
+    except (InitialStateError, GridError, CaseError, PhysicalPassError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
     if checked is not None:
         from solver.restart import RestartError, apply, truncate_series

@@ -74,3 +74,12 @@ def test_serial_run_without_mpi4py(cli_process, case_file, tmp_path):
                     pre="import sys; sys.modules['mpi4py'] = None; ")
     assert r.returncode == 0, r.stderr
     assert "1 rank(s)" in r.stdout
+
+
+def test_unknown_physical_pass_is_bad_input(cli_process, case_file, tmp_path, monkeypatch):
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
+    r = cli_process("run", str(case_file), "--output", "out", cwd=tmp_path)
+    assert r.returncode == 2
+    assert "SHEARMIX_PHYSICAL_PASS='tiles': allowed are blocks, whole" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "out" / "timeseries.h5").exists()
