@@ -245,6 +245,66 @@ def stress_pair(f, g, first, second):
     np.copyto(second, fg)
 
 
+def _stresses_loop(u, v, w, uv, uu_ww):
+    n = u.size
+    uf = u.reshape(n)
+    vf = v.reshape(n)
+    wf = w.reshape(n)
+    pf = uv.reshape(n)
+    qf = uu_ww.reshape(n)
+    for i in range(n):
+        a = uf[i]
+        b = vf[i]
+        c = wf[i]
+        pf[i] = a * b
+        qf[i] = a * a - c * c
+        uf[i] = a * c
+        vf[i] = b * b - c * c
+        wf[i] = b * c
+
+
+_stresses_nb = _jit(_stresses_loop)
+
+
+def stresses(u, v, w, uv, uu_ww):
+    """The five stresses from one read of the velocity: ``uv``, ``uu - ww`` into
+    the two given arrays, and ``u <- uw``, ``v <- vv - ww``, ``w <- vw``."""
+    if use_numba():
+        _stresses_nb(u, v, w, uv, uu_ww)
+        return
+    product(u, v, uv)
+    stress_pair(u, w, uu_ww, u)
+    stress_pair(v, w, v, w)
+
+
+def _scalar_fluxes_loop(u, v, w, T, uT, vT):
+    n = u.size
+    uf = u.reshape(n)
+    vf = v.reshape(n)
+    wf = w.reshape(n)
+    tf = T.reshape(n)
+    af = uT.reshape(n)
+    bf = vT.reshape(n)
+    for i in range(n):
+        t = tf[i]
+        af[i] = uf[i] * t
+        bf[i] = vf[i] * t
+        tf[i] = wf[i] * t
+
+
+_scalar_fluxes_nb = _jit(_scalar_fluxes_loop)
+
+
+def scalar_fluxes(u, v, w, T, uT, vT):
+    """``uT``, ``vT`` into the given arrays and ``T <- wT``, from one read of ``T``."""
+    if use_numba():
+        _scalar_fluxes_nb(u, v, w, T, uT, vT)
+        return
+    np.multiply(u, T, out=uT)
+    np.multiply(v, T, out=vT)
+    np.multiply(w, T, out=T)
+
+
 # ---------------------------------------------------------------- diagnostics sums
 #: order of the sums returned by :func:`spectral_sums`
 SUM_NAMES = ("Kx", "Ky", "Kz", "grad2", "wT", "T2", "gradT2", "w_ilap_w", "b2")

@@ -188,16 +188,13 @@ class PseudoSpectralTendency:
         if self.advection is None:
             return
         if self.with_T:
-            T = blocks[3]
-            kernels.product(u, T, blocks[4])      # uT
-            kernels.product(v, T, blocks[5])      # vT
-            kernels.product(w, T, T)              # wT, over T
+            # uT, vT into blocks 4, 5; wT over T
+            kernels.scalar_fluxes(u, v, w, blocks[3], blocks[4], blocks[5])
             uv, uu_ww = blocks[6], blocks[7]
         else:
             uv, uu_ww = blocks[3], blocks[4]
-        kernels.product(u, v, uv)
-        kernels.stress_pair(u, w, uu_ww, u)       # u <- uw
-        kernels.stress_pair(v, w, v, w)           # v <- vv - ww, w <- vw
+        # u <- uw, v <- vv - ww, w <- vw
+        kernels.stresses(u, v, w, uv, uu_ww)
 
     def _products_by_blocks(self, y: np.ndarray, out: np.ndarray) -> None:
         P = self.P

@@ -140,16 +140,50 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
             "peak_rss_bytes": rss, "bytes_per_point": rss / n ** 3}
 
 
+def passes_worker(model: str, n: int, steps: int) -> dict | None:
+    """The block-wise and the whole-array product pass in one process, their
+    steps alternating (so a change of the machine's load weighs on both)."""
+    from solver.parallel import world
+    from solver.simulation import Simulation
+    comm = world()
+    sims = {}
+    saved = os.environ.get("SHEARMIX_PHYSICAL_PASS")
+    try:
+        for kind in ("whole", "blocks"):
+            os.environ["SHEARMIX_PHYSICAL_PASS"] = kind
+            sims[kind] = Simulation(_case(model, n, steps), comm)
+    finally:
+        if saved is None:
+            os.environ.pop("SHEARMIX_PHYSICAL_PASS", None)
+        else:
+            os.environ["SHEARMIX_PHYSICAL_PASS"] = saved
+    for sim in sims.values():
+        sim.advance()
+        sim.advance()
+    times = {kind: [] for kind in sims}
+    for _ in range(steps):
+        for kind, sim in sims.items():
+            comm.barrier()
+            t0 = time.perf_counter()
+            sim.advance()
+            times[kind].append(comm.max(time.perf_counter() - t0))
+    if comm.rank != 0:
+        return None
+    whole, blocks = (statistics.median(times[k]) for k in ("whole", "blocks"))
+    return {"model": model, "n": n, "ranks": comm.size, "whole_seconds": whole,
+            "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
+
+
 def _mpiexec() -> str:
     here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
     return here if os.path.exists(here) else "mpiexec"
 
 
 def launch(model: str, n: int, ranks: int, steps: int, threads: int = 1,
-           diag_every: int = 0) -> dict:
+           diag_every: int = 0, worker: str = "--worker") -> dict:
     env = dict(os.environ, OMP_NUM_THREADS=str(threads))
     cmd = [_mpiexec(), "-n", str(ranks), sys.executable, "-m", "tools.benchmark",
-           "--worker", model, str(n), str(steps), str(threads), str(diag_every)]
+           worker, model, str(n), str(steps), str(threads), str(diag_every)]
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if res.returncode != 0:
         raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks failed:\n"
@@ -217,6 +251,11 @@ def markdown(report: dict) -> str:
                          f"{v['1x1']['step_seconds']:.3f} s, 1 rank x 2 threads "
                          f"{v['1x2']['step_seconds']:.3f} s, 2 ranks x 1 thread "
                          f"{v['2x1']['step_seconds']:.3f} s" for m, v in thr]
+    passes = [v for k, v in extras.items() if k.startswith("passes_")]
+    if passes:
+        lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} rank(s): block-wise "
+                         f"{v['blocks_seconds']:.3f} s, whole-array {v['whole_seconds']:.3f} s "
+                         f"per step ({v['blocks_vs_whole']:.2f})" for v in passes]
     return "\n".join(lines) + "\n"
 
 
@@ -236,11 +275,21 @@ def main(argv=None) -> int:
                     help="also compare 1 rank x 2 FFTW threads with 2 ranks x 1 thread (largest size)")
     ap.add_argument("--markdown", metavar="JSON",
                     help="print the README tables of an earlier --json report, run nothing")
+    ap.add_argument("--passes", action="store_true",
+                    help="also compare the block-wise and the whole-array product pass in "
+                         "one process per rank count (128^3, or the largest size below it)")
     ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
+    ap.add_argument("--passes-worker", nargs=5, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.markdown:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
+        return 0
+    if args.passes_worker:
+        w = args.passes_worker
+        rec = passes_worker(w[0], int(w[1]), int(w[2]))
+        if rec is not None:
+            print(json.dumps(rec))
         return 0
     if args.worker:
         w = args.worker
@@ -304,6 +353,16 @@ def main(argv=None) -> int:
             print(f"  {model:11s} 1 rank x 1 thread {one['step_seconds']:.4f} s, "
                   f"1 rank x 2 threads {thr['step_seconds']:.4f} s, "
                   f"2 ranks x 1 thread {rk['step_seconds']:.4f} s")
+    if args.passes:
+        n = max([s for s in args.sizes if s <= 128] or [min(args.sizes)])
+        print(f"\nblock-wise against whole-array products at {n}^3 (one process, "
+              "steps alternating):")
+        for model in args.models:
+            for ranks in args.ranks:
+                r = launch(model, n, ranks, args.steps, worker="--passes-worker")
+                extras[f"passes_{model}_{ranks}"] = r
+                print(f"  {model:11s} {ranks} rank(s): whole {r['whole_seconds']:.4f} s, "
+                      f"blocks {r['blocks_seconds']:.4f} s, ratio {r['blocks_vs_whole']:.3f}")
     if args.json:
         with open(args.json, "w") as fh:
             json.dump({"version": __version__, "machine": machine(), "records": records,

@@ -70,3 +70,23 @@ def test_stress_pair_matches_plain_arithmetic(backend, layout):
         kernels.set_backend(None)
     np.testing.assert_allclose(first, f0 * f0 - g0 * g0, rtol=1e-15, atol=1e-15)
     np.testing.assert_allclose(second, f0 * g0, rtol=1e-15, atol=1e-15)
+
+
+@pytest.mark.parametrize("backend", ["numba", "numpy"])
+def test_fused_stresses_and_scalar_fluxes_match_plain_arithmetic(backend):
+    """The block-wise pass's fused products: five stresses from u, v, w (three of
+    them over the velocity) and three fluxes of T (one over T)."""
+    rng = np.random.default_rng(11)
+    u0, v0, w0, T0 = rng.standard_normal((4, 3, 5, 4))
+    u, v, w, T = u0.copy(), v0.copy(), w0.copy(), T0.copy()
+    uv, uu_ww, uT, vT = (np.empty_like(u) for _ in range(4))
+    kernels.set_backend(backend)
+    try:
+        kernels.scalar_fluxes(u, v, w, T, uT, vT)
+        kernels.stresses(u, v, w, uv, uu_ww)
+    finally:
+        kernels.set_backend(None)
+    for got, want in ((uT, u0 * T0), (vT, v0 * T0), (T, w0 * T0), (uv, u0 * v0),
+                      (uu_ww, u0 * u0 - w0 * w0), (u, u0 * w0), (v, v0 * v0 - w0 * w0),
+                      (w, v0 * w0)):
+        np.testing.assert_allclose(got, want, rtol=1e-15, atol=1e-15)

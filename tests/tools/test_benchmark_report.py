@@ -35,3 +35,16 @@ def test_worker_counts_the_fewest_transforms_per_stage(monkeypatch, physical_pas
         assert rec["transforms_per_step"] == stages * per_stage
         assert rec["step_seconds"] > 0 and rec["floor_seconds"] > 0
         assert rec["bytes_per_point"] > 0
+
+
+def test_passes_worker_times_both_product_passes_in_one_process(monkeypatch):
+    from tools.benchmark import passes_worker
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
+    rec = passes_worker("lowpe", 16, 2)
+    assert rec["whole_seconds"] > 0 and rec["blocks_seconds"] > 0
+    assert rec["blocks_vs_whole"] == rec["blocks_seconds"] / rec["whole_seconds"]
+    import os
+    assert os.environ["SHEARMIX_PHYSICAL_PASS"] == "whole"   # the caller's choice restored
+    text = markdown({"version": "x", "machine": "m", "records": [],
+                     "extras": {"passes_lowpe_1": rec}})
+    assert "- lowpe 16^3, 1 rank(s): block-wise" in text
