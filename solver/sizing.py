@@ -5,30 +5,39 @@ import math
 
 from .case import Case
 from .grid import allowed_rank_counts, dealias_cutoff
+from .productpass import physical_pass, product_fields
 
 
 #: resident memory of Python and the libraries per rank (a 16^3 run, measured: ~250 MB)
 LIBRARY_BYTES = 250 * 2 ** 20
 
 
-def bytes_per_point(nfields: int, ranks: int = 1) -> float:
+def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float:
     """Estimated resident bytes per grid point of the engine's arrays (all ranks together).
 
     A complex half-spectrum array costs 8 bytes per grid point, a real physical
     array 8, a real spectral array 4. Counted: the three stepper registers
-    (solution, stage, tendency) of ``nfields`` spectral fields; the velocity,
-    temperature and product physical arrays; five spectral product transforms;
-    the implicit coefficient arrays (2 for the low-Peclet model, 4 for the full
-    one); on several ranks the two transpose buffers. Measured by
-    ``scripts/bench`` at 128^3: 138 (lowpe) and 175 (boussinesq) bytes per point
-    net of the interpreter, against 128 and 168 from this count.
+    (solution, stage, tendency) of ``nfields`` spectral fields; the implicit
+    coefficient arrays (2 for the low-Peclet model, 4 for the full one); the
+    transform's physical planning buffer. With whole arrays (``blocks``
+    False): the velocity (and temperature) physical arrays, a product buffer,
+    five spectral product transforms and, on several ranks, the two shared
+    transpose arrays. Block-wise: one spectral array per product field (5,
+    or 8 with temperature) and, on several ranks, as many shared arrays.
+    Measured by ``scripts/bench`` at 128^3, net of the interpreter: whole
+    arrays 138 (lowpe) and 175 (boussinesq) bytes per point against 128 and
+    168 from this count; block-wise 115 and 168 against 104 and 160.
     """
     spectral, physical, real_spectral = 8.0, 8.0, 4.0
     full = nfields == 3
-    total = 3 * nfields * spectral
-    total += (4 + (1 if full else 0)) * physical + 5 * spectral
-    total += (4 if full else 2) * real_spectral
-    total += 2 * spectral if ranks > 1 else 0
+    total = 3 * nfields * spectral + (4 if full else 2) * real_spectral + physical
+    if blocks:
+        products = product_fields(full)
+        total += products * spectral
+        total += products * spectral if ranks > 1 else 0
+    else:
+        total += (3 + (1 if full else 0)) * physical + 5 * spectral
+        total += 2 * spectral if ranks > 1 else 0
     return total
 
 
@@ -59,7 +68,11 @@ def derived(case: Case, ranks: int | None = None) -> dict:
         if case.F0 > 0 else float("nan"),
         "allowed rank counts": allowed_rank_counts(case.shape),
     }
-    per_point = bytes_per_point(nfields, ranks or 1)
+    # the product pass the run will choose, all ranks on one node
+    full = nfields == 3
+    blocks = physical_pass(product_fields(full) * nx * ny * nz * 8) == "blocks"
+    per_point = bytes_per_point(nfields, ranks or 1, blocks)
+    out["product pass"] = "block-wise" if blocks else "whole arrays"
     out["expected memory"] = per_point * nx * ny * nz + LIBRARY_BYTES * (ranks or 1)
     out["bytes per point"] = per_point
     return out

@@ -8,15 +8,12 @@ Evolution to Complex Geometries, section 3.3). Temperature advection is
 ``-div(u T)``. Per evaluation: 3 (+1) inverse and 5 (+3) forward transforms.
 
 Two ways to make the products, with the same transforms and results equal to
-round-off: on grids whose fields overflow the cache, one
-:meth:`SlabTransform.round_trip` makes them block by block of x-planes, so the
-velocity never exists as full arrays ("blocks"); on small grids, full
-velocity arrays and one 3D transform each ("whole"). ``SHEARMIX_PHYSICAL_PASS``
-(``blocks`` or ``whole``) overrides the choice.
+round-off (:mod:`solver.productpass` chooses): on grids whose fields overflow
+the cache, one :meth:`SlabTransform.round_trip` makes them block by block of
+x-planes, so the velocity never exists as full arrays ("blocks"); on small
+grids, full velocity arrays and one 3D transform each ("whole").
 """
 from __future__ import annotations
-
-import os
 
 import numpy as np
 
@@ -24,40 +21,14 @@ from . import kernels
 from .basis import CrayaHerring
 from .grid import Grid
 from .terms import Advection, ShearForcing
-from .transforms import SlabTransform, last_level_cache_bytes
-
-PASS_CHOICES = ("blocks", "whole")
-
-
-class PhysicalPassError(ValueError):
-    """An unknown ``SHEARMIX_PHYSICAL_PASS``; the message is one line."""
-
-
-def physical_pass(grid: Grid, fields: int, ranks_on_node: int) -> str:
-    """``'blocks'`` when ``fields`` physical fields of all ranks on a node overflow
-    the last-level cache, else ``'whole'`` (``SHEARMIX_PHYSICAL_PASS`` overrides).
-
-    Measured on a 2-core AMD EPYC with a 32 MiB L3 (README, performance): at
-    128^3 the block-wise pass makes a stage's transforms and products 25-30%
-    faster on 1 and 2 ranks; at 64^3, where everything stays in cache, the
-    single 3D transforms of the whole-array pass are 5-15% faster.
-    """
-    choice = os.environ.get("SHEARMIX_PHYSICAL_PASS", "")
-    if choice:
-        if choice not in PASS_CHOICES:
-            raise PhysicalPassError(f"SHEARMIX_PHYSICAL_PASS={choice!r}: allowed are "
-                             f"{', '.join(PASS_CHOICES)}")
-        return choice
-    nx, ny, nz = grid.physical_shape
-    working_set = fields * nx * ny * nz * 8 * ranks_on_node
-    return "blocks" if working_set > last_level_cache_bytes() else "whole"
-
+from .productpass import PASS_CHOICES, physical_pass, product_fields
+from .transforms import SlabTransform
 
 class PseudoSpectralTendency:
     """``N(y)`` for a stacked state ``y = [a, p(, T)]``; callable as ``(y, t, out)``.
 
-    ``physical_pass``: ``'blocks'``, ``'whole'`` or None (choose by
-    :func:`physical_pass`).
+    ``physical_pass_kind``: ``'blocks'``, ``'whole'`` or None (choose by
+    :func:`solver.productpass.physical_pass`).
     """
 
     def __init__(self, grid: Grid, basis: CrayaHerring, transform: SlabTransform,
@@ -68,10 +39,11 @@ class PseudoSpectralTendency:
         self.advection = advection
         self.has_T = "T" in self.fields
         self.with_T = self.has_T and advection is not None and advection.with_temperature
-        # fields on the grid at once: u, v, w (, T) in, 5 (+3) products out
-        n_products = 8 if self.with_T else 5
+        n_products = product_fields(self.with_T)
         if physical_pass_kind is None:
-            physical_pass_kind = physical_pass(grid, n_products, transform.comm.ranks_on_node())
+            nx, ny, nz = grid.physical_shape
+            physical_pass_kind = physical_pass(
+                n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node())
         if physical_pass_kind not in PASS_CHOICES:
             raise ValueError(f"physical pass {physical_pass_kind!r}: allowed are "
                              f"{', '.join(PASS_CHOICES)}")

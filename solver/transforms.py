@@ -38,26 +38,6 @@ from .grid import Grid
 #: bytes of one physical block of the round trip (a few fit in a core's L2 cache)
 BLOCK_BYTES = 256 * 1024
 
-#: assumed when the machine does not say (a common server L3 size)
-DEFAULT_CACHE_BYTES = 32 * 1024 ** 2
-
-
-def last_level_cache_bytes(base: str = "/sys/devices/system/cpu/cpu0/cache") -> int:
-    """Size of this CPU's largest cache, from Linux sysfs (``DEFAULT_CACHE_BYTES`` if unknown)."""
-    best = 0
-    try:
-        for entry in os.listdir(base):
-            if not entry.startswith("index"):
-                continue
-            with open(os.path.join(base, entry, "size")) as fh:
-                text = fh.read().strip()
-            scale = {"K": 1024, "M": 1024 ** 2, "G": 1024 ** 3}.get(text[-1:], 1)
-            best = max(best, int(text.rstrip("KMG")) * scale)
-    except (OSError, ValueError):
-        best = 0
-    return best or DEFAULT_CACHE_BYTES
-
-
 _EFFORT_FLAG = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE",
                 "patient": "FFTW_PATIENT"}
 

@@ -151,7 +151,7 @@ def cmd_run(args) -> int:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
     from solver.simulation import Simulation
-    from solver.tendency import PhysicalPassError
+    from solver.productpass import PhysicalPassError
     try:
         sim = Simulation(case, comm, initial=checked is None)
     except (InitialStateError, GridError, CaseError, PhysicalPassError) as exc:

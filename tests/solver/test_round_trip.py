@@ -3,7 +3,7 @@ against numpy.fft, and the tendency made by blocks against the whole-array pass.
 import numpy as np
 import pytest
 
-from solver import tendency as tendency_module
+from solver import productpass
 from solver import transforms
 from solver.grid import Grid
 from solver.parallel import SerialComm
@@ -97,24 +97,31 @@ def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
 
 
 def test_physical_pass_follows_the_cache(monkeypatch):
-    grid = Grid((64, 64, 64), (1.0, 1.0, 1.0))
     monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
-    field = 64 ** 3 * 8
-    monkeypatch.setattr(tendency_module, "last_level_cache_bytes", lambda: 5 * field)
-    assert tendency_module.physical_pass(grid, 5, 1) == "whole"
-    assert tendency_module.physical_pass(grid, 8, 1) == "blocks"
-    assert tendency_module.physical_pass(grid, 5, 2) == "blocks"  # ranks share the cache
+    monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda: 1000)
+    assert productpass.physical_pass(1000) == "whole"
+    assert productpass.physical_pass(1001) == "blocks"
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
-    assert tendency_module.physical_pass(grid, 8, 2) == "whole"
+    assert productpass.physical_pass(10 ** 12) == "whole"
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
-    with pytest.raises(ValueError, match="SHEARMIX_PHYSICAL_PASS='tiles'.*blocks, whole"):
-        tendency_module.physical_pass(grid, 5, 1)
+    with pytest.raises(productpass.PhysicalPassError,
+                       match="SHEARMIX_PHYSICAL_PASS='tiles'.*blocks, whole"):
+        productpass.physical_pass(1)
+
+
+def test_tendency_counts_the_fields_of_all_ranks_on_the_node(make_case, monkeypatch):
+    """5 product fields (low-Peclet) of the whole 16^3 grid on one rank: 163840 bytes."""
+    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
+    case = make_case()
+    for cache, kind in ((5 * 16 ** 3 * 8, "whole"), (5 * 16 ** 3 * 8 - 1, "blocks")):
+        monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda c=cache: c)
+        assert Simulation(case).tendency.blocks == (kind == "blocks")
 
 
 def test_cache_size_read_from_sysfs(tmp_path):
     for name, size in (("index0", "32K"), ("index2", "512K"), ("index3", "16384K")):
         (tmp_path / name).mkdir()
         (tmp_path / name / "size").write_text(size + "\n")
-    assert transforms.last_level_cache_bytes(str(tmp_path)) == 16 * 1024 ** 2
+    assert productpass.last_level_cache_bytes(str(tmp_path)) == 16 * 1024 ** 2
     missing = str(tmp_path / "nothing")
-    assert transforms.last_level_cache_bytes(missing) == transforms.DEFAULT_CACHE_BYTES
+    assert productpass.last_level_cache_bytes(missing) == productpass.DEFAULT_CACHE_BYTES
