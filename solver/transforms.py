@@ -19,7 +19,9 @@ outside the band.
 one sweep: inverse transforms, a pointwise pass on the grid and band-pruned
 forward transforms, a block of x-planes at a time, so that the physical
 fields live only in cache-sized blocks instead of full arrays that stream
-through memory between the transforms and the products.
+through memory between the transforms and the products. Its inverse half
+skips the modes the 2/3 rule discards in z (x- and y-transforms over the
+kept kz only), so its inputs must be band-limited in kz.
 
 Normalisation: :meth:`SlabTransform.forward` returns ``N * f_k`` (unnormalised
 FFTW output); callers fold ``1/N`` into their dealiasing mask.
