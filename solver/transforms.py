@@ -254,8 +254,9 @@ class SlabTransform:
         calls, but the physical fields never exist as full arrays: the
         products read them from cache. An output may be one of the inputs.
         The kz cutoff also prunes the work: the x-inverse and the y-transforms
-        run over the kept kz only (14-21% faster steps at 192^3, 4-7% at 128^3
-        on two ranks, even on one rank at 128^3; measured in one process).
+        run over the kept kz only (measured in one process, steps alternating:
+        14-21% faster steps at 192^3 on one and two ranks, 4-7% for the
+        low-Péclet model at 128^3 on two, within 2.5% either way at 128^3 on one).
         """
         m, k = len(inputs), len(outputs)
         trip = self._trip
