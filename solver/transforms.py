@@ -198,7 +198,6 @@ class SlabTransform:
             # all ranks write their x-slab into the shared array, then each
             # reads its ky-columns straight out of it: no message
             turn = self._next_turn()
-            self._dirty = True
             self._fwd_yz.update_arrays(physical, self._rows[turn])
             self._fwd_yz.execute()
             self.comm.barrier()
@@ -211,9 +210,11 @@ class SlabTransform:
     def _next_turn(self) -> int:
         # two shared arrays in turn: a rank may start transform t+1 while
         # another still reads transform t's array; it cannot start t+2 before
-        # everyone has passed t+1's barrier, i.e. finished reading t's array
+        # everyone has passed t+1's barrier, i.e. finished reading t's array.
+        # A round trip that follows must wait for the readers first (dirty).
         turn = self._turn
         self._turn ^= 1
+        self._dirty = True
         return turn
 
     def inverse(self, spectral: np.ndarray, physical: np.ndarray) -> np.ndarray:
@@ -225,7 +226,6 @@ class SlabTransform:
             return physical
         if self._shared is not None:
             turn = self._next_turn()
-            self._dirty = True
             self._inv_x.update_arrays(spectral, self._cols[turn])
             self._inv_x.execute()
             self.comm.barrier()
