@@ -267,7 +267,7 @@ class SlabTransform:
         self.count_inverse += m
         self.count_forward += k
         self.count_forward_band += k
-        blocks, rows, nb = trip["blocks"], trip["rows"], trip["planes"]
+        blocks, rows = trip["blocks"], trip["rows"]
         nkz = self.grid.nz_kept
         xk = trip["x_inverse"]
         if self.P == 1:
