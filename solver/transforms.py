@@ -19,9 +19,9 @@ outside the band.
 one sweep: inverse transforms, a pointwise pass on the grid and band-pruned
 forward transforms, a block of x-planes at a time, so that the physical
 fields live only in cache-sized blocks instead of full arrays that stream
-through memory between the transforms and the products. Its inverse half
-skips the modes the 2/3 rule discards in z (x- and y-transforms over the
-kept kz only), so its inputs must be band-limited in kz.
+through memory between the transforms and the products. It skips what the
+2/3 rule discards (x-inverse over the kept (ky, kz) columns, y-transforms
+over the kept kz), so its inputs must be zero outside the band in ky and kz.
 
 Normalisation: :meth:`SlabTransform.forward` returns ``N * f_k`` (unnormalised
 FFTW output); callers fold ``1/N`` into their dealiasing mask.
@@ -243,20 +243,23 @@ class SlabTransform:
     def round_trip(self, inputs, outputs, pointwise=None) -> None:
         """Inverse transforms, a pointwise pass on the grid, band-pruned forward transforms.
 
-        The ``m`` arrays of ``inputs`` (spectral, destroyed; their modes past the
-        2/3-rule kz cutoff, ``kz index >= Grid.nz_kept``, are taken as zero and
-        never read) are brought to the grid a block of x-planes at a time into
-        ``blocks[0..m-1]``;
+        The ``m`` arrays of ``inputs`` (spectral, destroyed; zero outside the
+        2/3-rule ky band, and their modes past the kz cutoff, ``kz index >=
+        Grid.nz_kept``, are taken as zero and never read) are brought to the
+        grid a block of x-planes at a time into ``blocks[0..m-1]``;
         ``pointwise(blocks)`` (if given) then leaves in ``blocks[j]`` the field
         whose forward transform goes to ``outputs[j]`` (correct inside the
         2/3-rule band, undefined elsewhere, as :meth:`forward_band`). The same
         transforms as ``m`` :meth:`inverse` and ``k`` :meth:`forward_band`
         calls, but the physical fields never exist as full arrays: the
         products read them from cache. An output may be one of the inputs.
-        The kz cutoff also prunes the work: the x-inverse and the y-transforms
-        run over the kept kz only (measured in one process, steps alternating:
-        14-21% faster steps at 192^3 on one and two ranks, 4-7% for the
-        low-Péclet model at 128^3 on two, within 2.5% either way at 128^3 on one).
+        The band also prunes the work: the x-inverse runs over the kept (ky, kz)
+        columns only, the y-transforms over the kept kz, and the forward
+        y-transforms write back the kept ky only (the shared rows stay zero
+        outside them). Measured in one process, steps alternating, the kz part
+        made steps 14-21% faster at 192^3 on one and two ranks, 4-7% for the
+        low-Péclet model at 128^3 on two, within 2.5% either way at 128^3 on
+        one; the ky part then 4-10% at 128^3 (medians of 3 launches each way).
         """
         m, k = len(inputs), len(outputs)
         trip = self._trip
@@ -269,26 +272,34 @@ class SlabTransform:
         self.count_forward_band += k
         blocks, rows = trip["blocks"], trip["rows"]
         nkz = self.grid.nz_kept
-        xk = trip["x_inverse"]
+        runs = list(zip(self._band_runs, trip["x_inverse"]))
         if self.P == 1:
             # x first, in place: the (y, z) transforms of each block then read the
             # inputs' own rows, and the outputs' rows take the forward results
             for spec in inputs:
-                xk.update_arrays(spec[:, :, :nkz], spec[:, :, :nkz])
-                xk.execute()
+                for (a, b), plan in runs:
+                    plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
+                    plan.execute()
             rows_in, rows_out = inputs, outputs
         elif self._shared is not None:
             if self._dirty:
-                self.comm.barrier()   # a plain transform may still be reading
+                # a plain transform wrote all of the turn arrays and may still be
+                # reading them: restore the zeros outside the kept ky, then wait
+                for mine in rows[:len(self._shared)]:
+                    for a, b in trip["y_gaps"]:
+                        mine[:, a:b, :nkz] = 0
+                self.comm.barrier()
             for spec, cols in zip(inputs, trip["cols"]):
-                xk.update_arrays(spec[:, :, :nkz], cols[:, :, :nkz])
-                xk.execute()
+                for (a, b), plan in runs:
+                    plan.update_arrays(spec[:, a:b, :nkz], cols[:, a:b, :nkz])
+                    plan.execute()
             self.comm.barrier()
             rows_in = rows_out = rows
         else:
             for spec, mid in zip(inputs, rows):
-                xk.update_arrays(spec[:, :, :nkz], spec[:, :, :nkz])
-                xk.execute()
+                for (a, b), plan in runs:
+                    plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
+                    plan.execute()
                 self._exchange.to_x_slabs(spec, mid)
             rows_in = rows_out = rows
         # per block: y over the kept kz only, z between the block and the complex
@@ -308,8 +319,9 @@ class SlabTransform:
             for block, spec in zip(blocks, rows_out):
                 zf.update_arrays(block, cb)
                 zf.execute()
-                yf.update_arrays(cb[:, :, :nkz], spec[i0:i0 + nb, :, :nkz])
-                yf.execute()
+                yf.execute()   # in place in cb; only the kept ky go back
+                for a, b in trip["y_runs"]:
+                    spec[i0:i0 + nb, a:b, :nkz] = cb[:, a:b, :nkz]
         if self.P == 1:
             sources = outputs
         elif self._shared is not None:
@@ -374,12 +386,17 @@ class SlabTransform:
         # that is not a multiple of the SIMD alignment
         aligned = (nb * ny * nzc * 16) % pyfftw.simd_alignment == 0
         bflags = flags if aligned else flags + ("FFTW_UNALIGNED",)
-        # the x-inverse over the kept kz only: in place, or into the shared columns
+        # the x-inverse over the kept (ky, kz) columns only: in place, or into
+        # the shared columns
         nkz = g.nz_kept
         x_target = trip["cols"][0] if "cols" in trip else self.spectral
-        trip["x_inverse"] = pyfftw.FFTW(self.spectral[:, :, :nkz], x_target[:, :, :nkz],
-                                        axes=(0,), direction="FFTW_BACKWARD", flags=flags,
-                                        threads=threads)
+        trip["x_inverse"] = [pyfftw.FFTW(self.spectral[:, a:b, :nkz], x_target[:, a:b, :nkz],
+                                         axes=(0,), direction="FFTW_BACKWARD", flags=flags,
+                                         threads=threads) for a, b in self._band_runs]
+        # kept ky over the whole y axis, and the gaps between them
+        c = g.cutoff[1]
+        trip["y_runs"] = [(0, c + 1), (ny - c, ny)]
+        trip["y_gaps"] = [(c + 1, ny - c)]
         cb = pyfftw.empty_aligned((nb, ny, nzc), dtype=np.complex128)
         trip["cblock"] = cb
         trip["y_inverse"] = pyfftw.FFTW(rows[0][:nb, :, :nkz], cb[:, :, :nkz], axes=(1,),
@@ -388,6 +405,10 @@ class SlabTransform:
                                         flags=flags + ("FFTW_DESTROY_INPUT",), threads=threads)
         trip["z_forward"] = pyfftw.FFTW(blocks[0], cb, axes=(2,), direction="FFTW_FORWARD",
                                         flags=flags, threads=threads)
-        trip["y_forward"] = pyfftw.FFTW(cb[:, :, :nkz], rows[0][:nb, :, :nkz], axes=(1,),
-                                        direction="FFTW_FORWARD", flags=bflags, threads=threads)
+        trip["y_forward"] = pyfftw.FFTW(cb[:, :, :nkz], cb[:, :, :nkz], axes=(1,),
+                                        direction="FFTW_FORWARD", flags=flags, threads=threads)
+        # outside the kept ky the rows stay zero: the forward pass writes only
+        # the kept ky and the x-inverse only the kept columns (planning wrote there)
+        for mine in rows:
+            mine[...] = 0
         self._trip = trip
