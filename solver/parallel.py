@@ -29,6 +29,9 @@ class SerialComm:
     def bcast(self, obj, root=0):
         return obj
 
+    def gather(self, obj, root=0):
+        return [obj]
+
     def ranks_on_node(self) -> int:
         return 1
 
@@ -69,6 +72,10 @@ class MPIComm:
 
     def bcast(self, obj, root=0):
         return self.comm.bcast(obj, root=root)
+
+    def gather(self, obj, root=0):
+        """Every rank's ``obj`` in rank order on ``root``, None elsewhere."""
+        return self.comm.gather(obj, root=root)
 
     def ranks_on_node(self) -> int:
         """How many ranks of this communicator share this rank's node (shared memory)."""

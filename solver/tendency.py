@@ -169,12 +169,14 @@ class PseudoSpectralTendency:
         kernels.stresses(u, v, w, uv, uu_ww)
 
     def _products_by_blocks(self, y: np.ndarray, out: np.ndarray) -> None:
-        P = self.P
+        P, clock = self.P, self.fft.clock
         kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
         inputs = P[:3]
         if self.with_T:
             np.copyto(P[3], y[2])
             inputs = P[:4]
+        if clock:
+            clock.lap("frame to Cartesian")
         self._rate = self._speed2 = 0.0
         if self.advection is None:
             self.fft.round_trip(inputs, [], self._block_products)
@@ -184,6 +186,8 @@ class PseudoSpectralTendency:
             comm = self.fft.comm
             self.cfl_rate = float(comm.max(self._rate))
             self.max_speed = float(np.sqrt(comm.max(self._speed2)))
+            if clock:
+                clock.lap("wait")
         if self.advection is None:
             return
         if self.with_T:
@@ -198,6 +202,8 @@ class PseudoSpectralTendency:
             stresses = (P[4], P[1], P[3], P[0], P[2])
         kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
+        if clock:
+            clock.lap("advection assembly")
 
     # ------------------------------------------------------------ whole-array pass
     def _products_whole(self, y: np.ndarray, out: np.ndarray) -> None:
@@ -225,11 +231,18 @@ class PseudoSpectralTendency:
         kernels.stress_pair(v, w, v, w)   # v <- vv - ww, w <- vw
         fwd(v, P[1])
         fwd(w, P[4])
+        clock = self.fft.clock
+        if clock:
+            clock.lap("transforms and products")
         kernels.momentum_advection(P, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
+        if clock:
+            clock.lap("advection assembly")
 
     def __call__(self, y: np.ndarray, t: float, out: np.ndarray) -> np.ndarray:
         g = self.grid
+        if self.fft.clock:
+            self.fft.clock.start()  # the stage update before this call is not a phase
         if self.advection is None:
             out[...] = 0
         if self.advection is not None or self.want_speed:

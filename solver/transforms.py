@@ -130,6 +130,8 @@ class SlabTransform:
         self._flags, self._threads = flags, threads
         self._trip = None          # round-trip plans and blocks, made on first use
         self._dirty = False        # a plain transform used the shared arrays since the last round trip
+        #: a :class:`solver.phaseclock.PhaseClock` to time the round trip's phases, or None
+        self.clock = None
         #: transforms performed, for the benchmark's transform floor
         self.count_forward = 0
         self.count_forward_band = 0
@@ -273,6 +275,7 @@ class SlabTransform:
         blocks, rows = trip["blocks"], trip["rows"]
         nkz = self.grid.nz_kept
         runs = list(zip(self._band_runs, trip["x_inverse"]))
+        clock = self.clock
         if self.P == 1:
             # x first, in place: the (y, z) transforms of each block then read the
             # inputs' own rows, and the outputs' rows take the forward results
@@ -289,10 +292,14 @@ class SlabTransform:
                     for a, b in trip["y_gaps"]:
                         mine[:, a:b, :nkz] = 0
                 self.comm.barrier()
+                if clock:
+                    clock.lap("wait")
             for spec, cols in zip(inputs, trip["cols"]):
                 for (a, b), plan in runs:
                     plan.update_arrays(spec[:, a:b, :nkz], cols[:, a:b, :nkz])
                     plan.execute()
+            if clock:
+                clock.lap("x inverse")
             self.comm.barrier()
             rows_in = rows_out = rows
         else:
@@ -302,6 +309,8 @@ class SlabTransform:
                     plan.execute()
                 self._exchange.to_x_slabs(spec, mid)
             rows_in = rows_out = rows
+        if clock:
+            clock.lap("x inverse" if self.P == 1 or self._shared is None else "wait")
         # per block: y over the kept kz only, z between the block and the complex
         # block ``cb``; everything past the kept kz is never read nor written
         nb, cb = trip["planes"], trip["cblock"]
@@ -314,18 +323,26 @@ class SlabTransform:
                 cb[:, :, nkz:] = 0   # the 2/3 rule; the c2r transform overwrote it
                 zi.update_arrays(cb, block)
                 zi.execute()
+            if clock:
+                clock.lap("yz inverse")
             if pointwise is not None:
                 pointwise(blocks)
+                if clock:
+                    clock.lap("products")
             for block, spec in zip(blocks, rows_out):
                 zf.update_arrays(block, cb)
                 zf.execute()
                 yf.execute()   # in place in cb; only the kept ky go back
                 for a, b in trip["y_runs"]:
                     spec[i0:i0 + nb, a:b, :nkz] = cb[:, a:b, :nkz]
+            if clock:
+                clock.lap("yz forward")
         if self.P == 1:
             sources = outputs
         elif self._shared is not None:
             self.comm.barrier()
+            if clock:
+                clock.lap("wait")
             sources = trip["cols"]
         else:
             for mid, spec in zip(rows, outputs):
@@ -335,10 +352,14 @@ class SlabTransform:
             for (a, b), plan in zip(self._band_runs, self._band_x):
                 plan.update_arrays(source[:, a:b, :nkz], spec[:, a:b, :nkz])
                 plan.execute()
+        if clock:
+            clock.lap("x forward")
         if self.P > 1 and self._shared is not None:
             # nobody may write these shared arrays while another rank reads them
             self.comm.barrier()
             self._dirty = False
+            if clock:
+                clock.lap("wait")
 
     @property
     def block_planes(self) -> int:

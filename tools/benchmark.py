@@ -174,6 +174,64 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
             "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
 
 
+def phases_worker(model: str, n: int, steps: int) -> dict | None:
+    """Where a step's time goes, rank by rank: a :class:`solver.phaseclock.PhaseClock`
+    on the transform laps each phase; what is left of the step (stage updates,
+    implicit solves, forcing) is "rest". Milliseconds per step, mean over ``steps``."""
+    from solver.parallel import world
+    from solver.phaseclock import PhaseClock
+    from solver.simulation import Simulation
+    comm = world()
+    sim = Simulation(_case(model, n, steps), comm)
+    sim.advance()
+    sim.advance()
+    clock = sim.fft.clock = PhaseClock()
+    total = 0.0
+    for _ in range(steps):
+        comm.barrier()
+        t0 = time.perf_counter()
+        sim.advance()
+        total += time.perf_counter() - t0
+    sim.fft.clock = None
+    ms = {phase: 1e3 * t / steps for phase, t in clock.totals.items()}
+    ms["rest"] = 1e3 * total / steps - sum(ms.values())
+    ms["step"] = 1e3 * total / steps
+    per_rank = comm.gather(ms)
+    if comm.rank != 0:
+        return None
+    return {"model": model, "n": n, "ranks": comm.size, "steps": steps,
+            "physical_pass": "blocks" if sim.tendency.blocks else "whole",
+            "ms_per_step": per_rank}
+
+
+def phases_table(records: list[dict]) -> list[str]:
+    """Text rows: one per phase, one column per (model, ranks, rank); the last
+    column of a 2-rank record also gives the slowest rank against 1 rank."""
+    from solver.phaseclock import PHASES
+    names = [p for p in PHASES + ("rest", "step")
+             if any(p in ms for r in records for ms in r["ms_per_step"])]
+    heads, cols = [], []
+    for r in records:
+        for k, ms in enumerate(r["ms_per_step"]):
+            heads.append(f"{r['model'][:5]} {r['ranks']}r" + (f"#{k}" if r["ranks"] > 1 else ""))
+            cols.append(ms)
+    one = {r["model"]: r["ms_per_step"][0] for r in records if r["ranks"] == 1}
+    two = {r["model"]: r["ms_per_step"] for r in records if r["ranks"] == 2}
+    ratio_heads = [f"{m[:5]} 2/1" for m in two if m in one]
+    lines = [f"{'ms per step':24s}" + "".join(f"{h:>12s}" for h in heads + ratio_heads)]
+    for p in names:
+        row = f"{p:24s}" + "".join(f"{c.get(p, 0.0):12.1f}" for c in cols)
+        for m in two:
+            if m in one:
+                slowest = max(ms.get(p, 0.0) for ms in two[m])
+                base = one[m].get(p, 0.0)
+                # a phase that is next to nothing on one rank (the waits) has no ratio
+                row += (f"{slowest / base:12.2f}" if base > 0.01 * one[m]["step"]
+                        else f"{'-':>12s}")
+        lines.append(row)
+    return lines
+
+
 def _mpiexec() -> str:
     here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
     return here if os.path.exists(here) else "mpiexec"
@@ -251,6 +309,11 @@ def markdown(report: dict) -> str:
                          f"{v['1x1']['step_seconds']:.3f} s, 1 rank x 2 threads "
                          f"{v['1x2']['step_seconds']:.3f} s, 2 ranks x 1 thread "
                          f"{v['2x1']['step_seconds']:.3f} s" for m, v in thr]
+    phases = [v for k, v in extras.items() if k.startswith("phases_")]
+    if phases:
+        lines += ["", f"Where a step's time goes at {phases[0]['n']}^3, ms per step "
+                  "(`--phases`; '#k' is rank k, '2/1' the slowest rank of 2 against 1 rank):",
+                  "", "```", *phases_table(phases), "```"]
     passes = [v for k, v in extras.items() if k.startswith("passes_")]
     if passes:
         lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} rank(s): block-wise "
@@ -278,12 +341,22 @@ def main(argv=None) -> int:
     ap.add_argument("--passes", action="store_true",
                     help="also compare the block-wise and the whole-array product pass in "
                          "one process per rank count (128^3, or the largest size below it)")
+    ap.add_argument("--phases", action="store_true",
+                    help="also time each phase of the step, rank by rank, at the "
+                         "largest size (where the time goes)")
+    ap.add_argument("--phases-worker", nargs=5, help=argparse.SUPPRESS)
     ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
     ap.add_argument("--passes-worker", nargs=5, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.markdown:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
+        return 0
+    if args.phases_worker:
+        w = args.phases_worker
+        rec = phases_worker(w[0], int(w[1]), int(w[2]))
+        if rec is not None:
+            print(json.dumps(rec))
         return 0
     if args.passes_worker:
         w = args.passes_worker
@@ -363,6 +436,17 @@ def main(argv=None) -> int:
                 extras[f"passes_{model}_{ranks}"] = r
                 print(f"  {model:11s} {ranks} rank(s): whole {r['whole_seconds']:.4f} s, "
                       f"blocks {r['blocks_seconds']:.4f} s, ratio {r['blocks_vs_whole']:.3f}")
+    if args.phases:
+        n = max(args.sizes)
+        print(f"\nwhere a step's time goes at {n}^3 (ms per step, mean of {args.steps} steps; "
+              "'rest' is the stage updates and implicit solves):")
+        recs = []
+        for model in args.models:
+            for ranks in args.ranks:
+                r = launch(model, n, ranks, args.steps, worker="--phases-worker")
+                extras[f"phases_{model}_{ranks}"] = r
+                recs.append(r)
+        print("\n".join(phases_table(recs)))
     if args.json:
         with open(args.json, "w") as fh:
             json.dump({"version": __version__, "machine": machine(), "records": records,

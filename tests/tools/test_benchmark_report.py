@@ -48,3 +48,37 @@ def test_passes_worker_times_both_product_passes_in_one_process(monkeypatch):
     text = markdown({"version": "x", "machine": "m", "records": [],
                      "extras": {"passes_lowpe_1": rec}})
     assert "- lowpe 16^3, 1 rank(s): block-wise" in text
+
+
+def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
+    from tools.benchmark import phases_table, phases_worker
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    rec = phases_worker("lowpe", 16, 3)
+    assert rec["physical_pass"] == "blocks" and rec["ranks"] == 1
+    (ms,) = rec["ms_per_step"]
+    laps = sum(v for k, v in ms.items() if k not in ("rest", "step"))
+    assert ms["rest"] >= 0 and ms["step"] > 0
+    assert laps + ms["rest"] == pytest.approx(ms["step"])
+    for phase in ("yz inverse", "products", "yz forward", "x inverse", "x forward"):
+        assert ms[phase] > 0
+    two = dict(rec, ranks=2, ms_per_step=[dict(ms, step=ms["step"] * 0.6),
+                                          dict(ms, step=ms["step"] * 0.7)])
+    table = phases_table([rec, two])
+    assert table[0].split()[-1] == "2/1"
+    step_row = [row for row in table if row.startswith("step")][0]
+    assert step_row.split()[-1] == "0.70"      # the slower rank against one rank
+    text = markdown({"version": "x", "machine": "m", "records": [],
+                     "extras": {"phases_lowpe_1": rec, "phases_lowpe_2": two}})
+    assert "Where a step's time goes at 16^3" in text and "yz inverse" in text
+
+
+@pytest.mark.mpi
+def test_phases_on_two_ranks_include_the_waits(monkeypatch):
+    from tools.benchmark import launch
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    rec = launch("boussinesq", 16, 2, 2, worker="--phases-worker")
+    assert rec["ranks"] == 2 and len(rec["ms_per_step"]) == 2
+    for ms in rec["ms_per_step"]:
+        assert "wait" in ms and ms["rest"] >= 0
+        laps = sum(v for k, v in ms.items() if k not in ("rest", "step"))
+        assert laps + ms["rest"] == pytest.approx(ms["step"])

@@ -1,0 +1,39 @@
+"""Wall time per phase of the time step: where a step's time goes, rank by rank.
+
+Off unless asked for (``SlabTransform.clock`` is None): the engine then pays
+one ``None`` test per phase. With a :class:`PhaseClock` attached, the
+transform's round trip and the tendency call :meth:`PhaseClock.lap` at each
+phase boundary; whatever runs between two tendency evaluations (the
+Runge-Kutta stage updates and implicit solves, the forcing) is not lapped,
+so a step's time minus the laps is that remainder. ``scripts/bench --phases``
+reports the laps per step.
+"""
+from __future__ import annotations
+
+import time
+
+#: phases in the order a step meets them (the whole-array pass has its own middle)
+PHASES = ("frame to Cartesian", "x inverse", "yz inverse", "products", "yz forward",
+          "x forward", "transforms and products", "wait", "advection assembly")
+
+
+class PhaseClock:
+    """Accumulates wall time per named phase between consecutive laps."""
+
+    def __init__(self):
+        self.totals: dict[str, float] = {}
+        self._last = time.perf_counter()
+
+    def start(self) -> None:
+        """Set the reference point: the next lap counts from here."""
+        self._last = time.perf_counter()
+
+    def lap(self, phase: str) -> None:
+        """Charge the time since the last lap (or start) to ``phase``."""
+        now = time.perf_counter()
+        self.totals[phase] = self.totals.get(phase, 0.0) + (now - self._last)
+        self._last = now
+
+    def reset(self) -> None:
+        self.totals.clear()
+        self.start()
