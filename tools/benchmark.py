@@ -157,6 +157,33 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
             os.environ.pop("SHEARMIX_PHYSICAL_PASS", None)
         else:
             os.environ["SHEARMIX_PHYSICAL_PASS"] = saved
+    times = _alternating_steps(sims, steps, comm)
+    if comm.rank != 0:
+        return None
+    whole, blocks = times["whole"], times["blocks"]
+    return {"model": model, "n": n, "ranks": comm.size, "whole_seconds": whole,
+            "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
+
+
+def schedule_worker(model: str, n: int, steps: int) -> dict | None:
+    """The round trip's blocks claimed from a node counter (dynamic) against each
+    rank on its own x-planes (static), steps alternating in one process."""
+    from solver.parallel import world
+    from solver.simulation import Simulation
+    comm = world()
+    sims = {kind: Simulation(_case(model, n, steps), comm) for kind in ("static", "dynamic")}
+    sims["static"].fft.dynamic_blocks = False
+    times = _alternating_steps(sims, steps, comm)
+    if comm.rank != 0:
+        return None
+    return {"model": model, "n": n, "ranks": comm.size, "static_seconds": times["static"],
+            "dynamic_seconds": times["dynamic"],
+            "dynamic_vs_static": times["dynamic"] / times["static"]}
+
+
+def _alternating_steps(sims: dict, steps: int, comm) -> dict:
+    """Median step time of each simulation, their steps taken in turn (so that a
+    change of the machine's load weighs on all alike), after two warm-up steps."""
     for sim in sims.values():
         sim.advance()
         sim.advance()
@@ -167,11 +194,7 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
             t0 = time.perf_counter()
             sim.advance()
             times[kind].append(comm.max(time.perf_counter() - t0))
-    if comm.rank != 0:
-        return None
-    whole, blocks = (statistics.median(times[k]) for k in ("whole", "blocks"))
-    return {"model": model, "n": n, "ranks": comm.size, "whole_seconds": whole,
-            "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
+    return {kind: statistics.median(t) for kind, t in times.items()}
 
 
 def phases_worker(model: str, n: int, steps: int) -> dict | None:
@@ -314,6 +337,12 @@ def markdown(report: dict) -> str:
         lines += ["", f"Where a step's time goes at {phases[0]['n']}^3, ms per step "
                   "(`--phases`; '#k' is rank k, '2/1' the slowest rank of 2 against 1 rank):",
                   "", "```", *phases_table(phases), "```"]
+    sched = [v for k, v in extras.items() if k.startswith("schedule_")]
+    if sched:
+        lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} ranks: blocks claimed "
+                         f"dynamically {v['dynamic_seconds']:.3f} s, each rank its own planes "
+                         f"{v['static_seconds']:.3f} s per step ({v['dynamic_vs_static']:.3f})"
+                         for v in sched]
     passes = [v for k, v in extras.items() if k.startswith("passes_")]
     if passes:
         lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} rank(s): block-wise "
@@ -345,12 +374,22 @@ def main(argv=None) -> int:
                     help="also time each phase of the step, rank by rank, at the "
                          "largest size (where the time goes)")
     ap.add_argument("--phases-worker", nargs=5, help=argparse.SUPPRESS)
+    ap.add_argument("--schedule", action="store_true",
+                    help="also compare the round trip's blocks claimed dynamically with "
+                         "each rank on its own planes (largest size and rank count)")
+    ap.add_argument("--schedule-worker", nargs=5, help=argparse.SUPPRESS)
     ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
     ap.add_argument("--passes-worker", nargs=5, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.markdown:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
+        return 0
+    if args.schedule_worker:
+        w = args.schedule_worker
+        rec = schedule_worker(w[0], int(w[1]), int(w[2]))
+        if rec is not None:
+            print(json.dumps(rec))
         return 0
     if args.phases_worker:
         w = args.phases_worker
@@ -436,6 +475,16 @@ def main(argv=None) -> int:
                 extras[f"passes_{model}_{ranks}"] = r
                 print(f"  {model:11s} {ranks} rank(s): whole {r['whole_seconds']:.4f} s, "
                       f"blocks {r['blocks_seconds']:.4f} s, ratio {r['blocks_vs_whole']:.3f}")
+    if args.schedule:
+        n = max(args.sizes)
+        ranks = max(args.ranks)
+        print(f"\nblocks claimed from a node counter against each rank on its own planes "
+              f"at {n}^3 on {ranks} ranks (one process, steps alternating):")
+        for model in args.models:
+            r = launch(model, n, ranks, args.steps, worker="--schedule-worker")
+            extras[f"schedule_{model}_{ranks}"] = r
+            print(f"  {model:11s} static {r['static_seconds']:.4f} s, dynamic "
+                  f"{r['dynamic_seconds']:.4f} s, ratio {r['dynamic_vs_static']:.3f}")
     if args.phases:
         n = max(args.sizes)
         print(f"\nwhere a step's time goes at {n}^3 (ms per step, mean of {args.steps} steps; "

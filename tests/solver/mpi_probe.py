@@ -53,13 +53,34 @@ def check_fft(out):
         back = fft.inverse(spec, fft.empty_physical())
         err_back = max(err_back, comm.max(float(np.abs(back - p).max())))
     err_trip = check_round_trip(comm, grid, fft, phys, fields)
+    counter = check_counter(comm)
     if comm.rank == 0:
         err = max(np.abs(full - np.fft.rfftn(f)).max() / np.abs(np.fft.rfftn(f)).max()
                   for full, f in zip(fulls, fields))
         np.savez(out, err_forward=err, err_inverse=err_back, err_band=err_band, size=comm.size,
-                 err_round_trip=err_trip,
+                 err_round_trip=err_trip, counter=counter,
                  transpose="shared" if getattr(fft, "_shared", None) is not None
                  else "alltoall")
+
+
+def check_counter(comm):
+    """1 if claims from a node counter are unique and complete on both slots, after
+    a reset too; 0 if not; -1 without shared memory (no counter)."""
+    counter = comm.node_counter(2)
+    if counter is None:
+        return -1
+    ok = True
+    for slot in (0, 1, 0):
+        got = [counter.fetch_add(slot) for _ in range(50 + 7 * comm.rank)]
+        every = comm.gather(got)
+        if comm.rank == 0:
+            flat = sorted(x for g in every for x in g)
+            ok = ok and flat == list(range(len(flat)))
+        comm.barrier()
+        if comm.rank == 0:
+            counter.reset(slot)
+        comm.barrier()
+    return int(comm.bcast(ok))
 
 
 def _products(blocks):
@@ -87,7 +108,10 @@ def check_round_trip(comm, grid, fft, phys, fields):
     expected = [np.fft.rfftn(f) for f in (u, v, v * w, u * v, u * u - w * w)]
     keep = Grid(grid.shape, grid.lengths).dealias
     err = 0.0
-    for _ in range(2):
+    # two trips with the blocks claimed from the node counter (its two slots in
+    # turn), then one with each rank on its own planes
+    for dynamic in (True, True, False):
+        fft.dynamic_blocks = dynamic
         specs = []
         for p in phys:
             s = fft.forward(p, fft.empty_spectral())

@@ -82,3 +82,15 @@ def test_phases_on_two_ranks_include_the_waits(monkeypatch):
         assert "wait" in ms and ms["rest"] >= 0
         laps = sum(v for k, v in ms.items() if k not in ("rest", "step"))
         assert laps + ms["rest"] == pytest.approx(ms["step"])
+
+
+@pytest.mark.mpi
+def test_schedule_worker_compares_claimed_and_own_planes(monkeypatch):
+    from tools.benchmark import launch
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    rec = launch("lowpe", 16, 2, 2, worker="--schedule-worker")
+    assert rec["ranks"] == 2 and rec["static_seconds"] > 0 and rec["dynamic_seconds"] > 0
+    assert rec["dynamic_vs_static"] == rec["dynamic_seconds"] / rec["static_seconds"]
+    text = markdown({"version": "x", "machine": "m", "records": [],
+                     "extras": {"schedule_lowpe_2": rec}})
+    assert "- lowpe 16^3, 2 ranks: blocks claimed dynamically" in text
