@@ -385,30 +385,17 @@ def main(argv=None) -> int:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
         return 0
-    if args.schedule_worker:
-        w = args.schedule_worker
-        rec = schedule_worker(w[0], int(w[1]), int(w[2]))
-        if rec is not None:
-            print(json.dumps(rec))
-        return 0
-    if args.phases_worker:
-        w = args.phases_worker
-        rec = phases_worker(w[0], int(w[1]), int(w[2]))
-        if rec is not None:
-            print(json.dumps(rec))
-        return 0
-    if args.passes_worker:
-        w = args.passes_worker
-        rec = passes_worker(w[0], int(w[1]), int(w[2]))
-        if rec is not None:
-            print(json.dumps(rec))
-        return 0
-    if args.worker:
-        w = args.worker
-        rec = worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]))
-        if rec is not None:
-            print(json.dumps(rec))
-        return 0
+    # inside an MPI job launched by launch(): one worker, its record on rank 0
+    jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4])),
+            "passes_worker": lambda w: passes_worker(w[0], int(w[1]), int(w[2])),
+            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2])),
+            "schedule_worker": lambda w: schedule_worker(w[0], int(w[1]), int(w[2]))}
+    for name, job in jobs.items():
+        if getattr(args, name):
+            rec = job(getattr(args, name))
+            if rec is not None:
+                print(json.dumps(rec))
+            return 0
     from solver.version import __version__
     records = []
     print(f"shearmix {__version__} benchmark on {machine()}")
