@@ -20,9 +20,9 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float
     (solution, stage, tendency) of ``nfields`` spectral fields; the implicit
     coefficient arrays (2 for the low-Peclet model, 4 for the full one); the
     transform's physical planning buffer. With whole arrays (``blocks``
-    False): the velocity (and temperature) physical arrays, a product buffer,
-    five spectral product transforms and, on several ranks, the two shared
-    transpose arrays. Block-wise: one spectral array per product field (5,
+    False): the velocity (and temperature) physical arrays, a second product
+    array beside the planning buffer, five spectral product transforms and,
+    on several ranks, the two shared transpose arrays. Block-wise: one spectral array per product field (5,
     or 8 with temperature) and, on several ranks, as many shared arrays.
     Measured by ``scripts/bench`` at 128^3, net of the interpreter: whole
     arrays 138 (lowpe) and 175 (boussinesq) bytes per point against 128 and
@@ -36,7 +36,7 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float
         total += products * spectral
         total += products * spectral if ranks > 1 else 0
     else:
-        total += (3 + (1 if full else 0)) * physical + 5 * spectral
+        total += (3 + (1 if full else 0) + 1) * physical + 5 * spectral
         total += 2 * spectral if ranks > 1 else 0
     return total
 

@@ -61,6 +61,8 @@ class PseudoSpectralTendency:
         else:
             self.velocity = [transform.empty_physical() for _ in range(3)]
             self.temperature = transform.empty_physical() if self.has_T else None
+            # uu - ww beside the product buffer (uv): all five stresses in one pass
+            self._uu_ww = transform.empty_physical() if advection is not None else None
         for buf in self.P:  # band-pruned transforms leave the rest as it was: finite
             buf[...] = 0
         self.scratch = self.P[0]
@@ -222,14 +224,14 @@ class PseudoSpectralTendency:
             kernels.scalar_advection(P, self.mask, self.scale, self.band, self.kvec, out[2])
         elif self.has_T:
             out[2] = 0
-        # the velocity is not needed past this point: the last two passes
-        # write the stresses over it (fewer memory passes, no extra array)
-        fwd(kernels.product(u, v, q), P[2])
-        kernels.stress_pair(u, w, q, u)   # q = uu - ww, u <- uw
-        fwd(q, P[0])
-        fwd(u, P[3])
-        kernels.stress_pair(v, w, v, w)   # v <- vv - ww, w <- vw
+        # the velocity is not needed past this point: one pass writes three of
+        # the stresses over it and the other two into q and uu - ww
+        uu_ww = self._uu_ww
+        kernels.stresses(u, v, w, q, uu_ww)   # u <- uw, v <- vv - ww, w <- vw, q = uv
+        fwd(uu_ww, P[0])
         fwd(v, P[1])
+        fwd(q, P[2])
+        fwd(u, P[3])
         fwd(w, P[4])
         clock = self.fft.clock
         if clock:

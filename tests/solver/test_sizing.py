@@ -5,9 +5,9 @@ from solver.sizing import bytes_per_point, derived
 
 def test_estimate_counts_the_arrays_of_each_pass():
     # whole arrays, low-Peclet, one rank: 6 registers + 2 real coefficient arrays
-    # + planning buffer + 3 velocity + 5 product transforms (common practice: 8 B/pt
+    # + planning buffer + 3 velocity + uu-ww + 5 product transforms (common practice: 8 B/pt
     # per complex half-spectrum or real array)
-    assert bytes_per_point(2, 1, blocks=False) == 6 * 8 + 2 * 4 + 8 + 3 * 8 + 5 * 8
+    assert bytes_per_point(2, 1, blocks=False) == 6 * 8 + 2 * 4 + 8 + 4 * 8 + 5 * 8
     # block-wise: no velocity arrays, one transform per product field
     assert bytes_per_point(2, 1, blocks=True) == 6 * 8 + 2 * 4 + 8 + 5 * 8
     assert bytes_per_point(3, 1, blocks=True) == 9 * 8 + 4 * 4 + 8 + 8 * 8
