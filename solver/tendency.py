@@ -218,9 +218,12 @@ class PseudoSpectralTendency:
         # the advection reads the band only: band-pruned forward transforms
         q, P, fwd = self.product, self.P, self.fft.forward_band
         if self.with_T:
+            # the three fluxes from one read: uT, vT into the product arrays, wT over T
             T = self.temperature
-            for comp in range(3):
-                fwd(kernels.product(self.velocity[comp], T, q), P[comp])
+            kernels.scalar_fluxes(u, v, w, T, q, self._uu_ww)
+            fwd(q, P[0])
+            fwd(self._uu_ww, P[1])
+            fwd(T, P[2])
             kernels.scalar_advection(P, self.mask, self.scale, self.band, self.kvec, out[2])
         elif self.has_T:
             out[2] = 0
