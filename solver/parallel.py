@@ -5,6 +5,7 @@ Set ``SHEARMIX_SERIAL=1`` to skip MPI even where it is installed.
 """
 from __future__ import annotations
 
+import atexit
 import os
 
 import numpy as np
@@ -184,6 +185,19 @@ class SharedCounter:
         self._zero = np.zeros(1, dtype=np.int64)
         self._got = np.zeros(1, dtype=np.int64)
         win.Lock_all(MPI.MODE_NOCHECK)  # one passive epoch for the window's life
+        self._open = True
+        # MPI_Finalize (which mpi4py registers at exit, before this) must not meet
+        # an open epoch: some MPI libraries hang or abort there
+        atexit.register(self.close)
+
+    def close(self) -> None:
+        """End the access epoch (local; the window itself is freed with MPI)."""
+        if self._open:
+            self._open = False
+            try:
+                self._win.Unlock_all()
+            except self._MPI.Exception:  # pragma: no cover - MPI already finalised
+                pass
 
     def fetch_add(self, slot: int) -> int:
         """Add one to counter ``slot``; its value before the addition."""

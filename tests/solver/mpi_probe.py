@@ -80,6 +80,8 @@ def check_counter(comm):
         if comm.rank == 0:
             counter.reset(slot)
         comm.barrier()
+    counter.close()
+    counter.close()   # idempotent; the exit handler calls it again
     return int(comm.bcast(ok))
 
 
