@@ -20,6 +20,7 @@ libraries).
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import resource
@@ -140,6 +141,21 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
             "peak_rss_bytes": rss, "bytes_per_point": rss / n ** 3}
 
 
+@contextlib.contextmanager
+def _physical_pass(kind: str):
+    """``SHEARMIX_PHYSICAL_PASS=kind`` while simulations are made; the caller's
+    setting afterwards."""
+    saved = os.environ.get("SHEARMIX_PHYSICAL_PASS")
+    os.environ["SHEARMIX_PHYSICAL_PASS"] = kind
+    try:
+        yield
+    finally:
+        if saved is None:
+            os.environ.pop("SHEARMIX_PHYSICAL_PASS", None)
+        else:
+            os.environ["SHEARMIX_PHYSICAL_PASS"] = saved
+
+
 def passes_worker(model: str, n: int, steps: int) -> dict | None:
     """The block-wise and the whole-array product pass in one process, their
     steps alternating (so a change of the machine's load weighs on both)."""
@@ -147,16 +163,9 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
     from solver.simulation import Simulation
     comm = world()
     sims = {}
-    saved = os.environ.get("SHEARMIX_PHYSICAL_PASS")
-    try:
-        for kind in ("whole", "blocks"):
-            os.environ["SHEARMIX_PHYSICAL_PASS"] = kind
+    for kind in ("whole", "blocks"):
+        with _physical_pass(kind):
             sims[kind] = Simulation(_case(model, n, steps), comm)
-    finally:
-        if saved is None:
-            os.environ.pop("SHEARMIX_PHYSICAL_PASS", None)
-        else:
-            os.environ["SHEARMIX_PHYSICAL_PASS"] = saved
     times = _alternating_steps(sims, steps, comm)
     if comm.rank != 0:
         return None
@@ -171,12 +180,15 @@ def schedule_worker(model: str, n: int, steps: int) -> dict | None:
     from solver.parallel import world
     from solver.simulation import Simulation
     comm = world()
-    sims = {kind: Simulation(_case(model, n, steps), comm) for kind in ("static", "dynamic")}
+    with _physical_pass("blocks"):   # the schedules are the round trip's
+        sims = {kind: Simulation(_case(model, n, steps), comm) for kind in ("static", "dynamic")}
     sims["static"].fft.dynamic_blocks = False
     times = _alternating_steps(sims, steps, comm)
     if comm.rank != 0:
         return None
-    return {"model": model, "n": n, "ranks": comm.size, "static_seconds": times["static"],
+    return {"model": model, "n": n, "ranks": comm.size,
+            "physical_pass": "blocks" if sims["dynamic"].tendency.blocks else "whole",
+            "static_seconds": times["static"],
             "dynamic_seconds": times["dynamic"],
             "dynamic_vs_static": times["dynamic"] / times["static"]}
 
@@ -351,6 +363,17 @@ def markdown(report: dict) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _compare(args, extras: dict, kind: str, n: int, rank_counts, title: str, describe) -> None:
+    """An A/B in one process per model and rank count (``--KIND-worker``); records
+    go to ``extras['KIND_MODEL_RANKS']``."""
+    print(f"\n{title} at {n}^3 (one process, steps alternating):")
+    for model in args.models:
+        for ranks in rank_counts:
+            r = launch(model, n, ranks, args.steps, worker=f"--{kind}-worker")
+            extras[f"{kind}_{model}_{ranks}"] = r
+            print(f"  {model:11s} {ranks} rank(s): {describe(r)}")
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(prog="scripts/bench", description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[64, 128])
@@ -453,25 +476,16 @@ def main(argv=None) -> int:
                   f"1 rank x 2 threads {thr['step_seconds']:.4f} s, "
                   f"2 ranks x 1 thread {rk['step_seconds']:.4f} s")
     if args.passes:
-        n = max([s for s in args.sizes if s <= 128] or [min(args.sizes)])
-        print(f"\nblock-wise against whole-array products at {n}^3 (one process, "
-              "steps alternating):")
-        for model in args.models:
-            for ranks in args.ranks:
-                r = launch(model, n, ranks, args.steps, worker="--passes-worker")
-                extras[f"passes_{model}_{ranks}"] = r
-                print(f"  {model:11s} {ranks} rank(s): whole {r['whole_seconds']:.4f} s, "
-                      f"blocks {r['blocks_seconds']:.4f} s, ratio {r['blocks_vs_whole']:.3f}")
+        _compare(args, extras, "passes", max([s for s in args.sizes if s <= 128]
+                                              or [min(args.sizes)]), args.ranks,
+                 "block-wise against whole-array products",
+                 lambda r: f"whole {r['whole_seconds']:.4f} s, blocks {r['blocks_seconds']:.4f} s, "
+                           f"ratio {r['blocks_vs_whole']:.3f}")
     if args.schedule:
-        n = max(args.sizes)
-        ranks = max(args.ranks)
-        print(f"\nblocks claimed from a node counter against each rank on its own planes "
-              f"at {n}^3 on {ranks} ranks (one process, steps alternating):")
-        for model in args.models:
-            r = launch(model, n, ranks, args.steps, worker="--schedule-worker")
-            extras[f"schedule_{model}_{ranks}"] = r
-            print(f"  {model:11s} static {r['static_seconds']:.4f} s, dynamic "
-                  f"{r['dynamic_seconds']:.4f} s, ratio {r['dynamic_vs_static']:.3f}")
+        _compare(args, extras, "schedule", max(args.sizes), [max(args.ranks)],
+                 "blocks claimed from a node counter against each rank on its own planes",
+                 lambda r: f"static {r['static_seconds']:.4f} s, dynamic "
+                           f"{r['dynamic_seconds']:.4f} s, ratio {r['dynamic_vs_static']:.3f}")
     if args.phases:
         n = max(args.sizes)
         print(f"\nwhere a step's time goes at {n}^3 (ms per step, mean of {args.steps} steps; "

@@ -87,9 +87,11 @@ def test_phases_on_two_ranks_include_the_waits(monkeypatch):
 @pytest.mark.mpi
 def test_schedule_worker_compares_claimed_and_own_planes(monkeypatch):
     from tools.benchmark import launch
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    # the worker makes block-wise simulations whatever the size or the caller asks
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
     rec = launch("lowpe", 16, 2, 2, worker="--schedule-worker")
     assert rec["ranks"] == 2 and rec["static_seconds"] > 0 and rec["dynamic_seconds"] > 0
+    assert rec["physical_pass"] == "blocks"
     assert rec["dynamic_vs_static"] == rec["dynamic_seconds"] / rec["static_seconds"]
     text = markdown({"version": "x", "machine": "m", "records": [],
                      "extras": {"schedule_lowpe_2": rec}})
