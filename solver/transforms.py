@@ -314,14 +314,14 @@ class SlabTransform:
             if clock:
                 clock.lap("x inverse")
             self.comm.barrier()
-            rows_in = rows_out = rows
+            rows_in, rows_out = rows[:m], rows[:k]
         else:
             for spec, mid in zip(inputs, rows):
                 for (a, b), plan in runs:
                     plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
                     plan.execute()
                 self._exchange.to_x_slabs(spec, mid)
-            rows_in = rows_out = rows
+            rows_in, rows_out = rows[:m], rows[:k]
         if clock:
             clock.lap("x inverse" if self.P == 1 or self._shared is None else "wait")
         # per block: y over the kept kz only, z between the block and the complex
@@ -332,8 +332,7 @@ class SlabTransform:
         counter = trip.get("counter") if self.dynamic_blocks else None
         if counter is not None:
             # any rank may take any rank's planes: all rows are in shared memory
-            rows_in = trip["arrays"][:len(rows_in)]
-            rows_out = trip["arrays"][:len(rows_out)]
+            rows_in, rows_out = trip["arrays"][:m], trip["arrays"][:k]
             starts = self._claimed_blocks(counter, trip)
         else:
             starts = range(0, self.grid.nx_local, nb)
