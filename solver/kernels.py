@@ -24,18 +24,37 @@ except ImportError:  # pragma: no cover
     HAVE_NUMBA = False
 
 
-_BACKEND = {"name": None}
+BACKENDS = ("numba", "numpy")
+
+#: the backend set in code, and ``SHEARMIX_KERNELS`` as read (None: not read yet)
+_BACKEND = {"name": None, "env": None}
+
+
+class KernelBackendError(ValueError):
+    """An unknown ``SHEARMIX_KERNELS``; the message is one line."""
 
 
 def set_backend(name: str | None) -> None:
-    """'numba', 'numpy', or None to follow ``SHEARMIX_KERNELS`` again."""
-    if name not in (None, "numba", "numpy"):
+    """'numba', 'numpy', or None to follow ``SHEARMIX_KERNELS`` again (read anew)."""
+    if name not in (None,) + BACKENDS:
         raise ValueError(f"kernel backend must be numba or numpy, got {name!r}")
     _BACKEND["name"] = name
+    _BACKEND["env"] = None
 
 
 def use_numba() -> bool:
-    name = _BACKEND["name"] or os.environ.get("SHEARMIX_KERNELS", "numba")
+    """Whether the compiled kernels run. ``SHEARMIX_KERNELS`` is read once (the
+    kernels ask per block, ~400 times a step at 128^3); a value other than
+    those of :data:`BACKENDS` raises :class:`KernelBackendError`."""
+    name = _BACKEND["name"]
+    if name is None:
+        name = _BACKEND["env"]
+        if name is None:
+            name = os.environ.get("SHEARMIX_KERNELS", "") or "numba"
+            if name not in BACKENDS:
+                raise KernelBackendError(f"SHEARMIX_KERNELS={name!r}: allowed are "
+                                         f"{', '.join(BACKENDS)}")
+            _BACKEND["env"] = name
     return HAVE_NUMBA and name != "numpy"
 
 

@@ -152,9 +152,11 @@ def cmd_run(args) -> int:
             print(f"shearmix: warning: {w}", file=sys.stderr)
     from solver.simulation import Simulation
     from solver.productpass import PhysicalPassError
+    from solver.kernels import KernelBackendError
     try:
         sim = Simulation(case, comm, initial=checked is None)
-    except (InitialStateError, GridError, CaseError, PhysicalPassError) as exc:
+    except (InitialStateError, GridError, CaseError, PhysicalPassError,
+            KernelBackendError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
     if checked is not None:
         from solver.restart import RestartError, apply, truncate_series

@@ -90,3 +90,24 @@ def test_fused_stresses_and_scalar_fluxes_match_plain_arithmetic(backend):
                       (uu_ww, u0 * u0 - w0 * w0), (u, u0 * w0), (v, v0 * v0 - w0 * w0),
                       (w, v0 * w0)):
         np.testing.assert_allclose(got, want, rtol=1e-15, atol=1e-15)
+
+
+def test_kernel_switch_is_read_once_and_checked(monkeypatch):
+    """``SHEARMIX_KERNELS`` is read on first use (and again after ``set_backend(None)``);
+    an unknown value is an error naming the switch and the allowed values."""
+    monkeypatch.setenv("SHEARMIX_KERNELS", "numpy")
+    kernels.set_backend(None)
+    try:
+        assert kernels.use_numba() is False
+        monkeypatch.setenv("SHEARMIX_KERNELS", "numba")
+        assert kernels.use_numba() is False       # read once
+        kernels.set_backend(None)
+        assert kernels.use_numba() is True
+        monkeypatch.setenv("SHEARMIX_KERNELS", "fast")
+        kernels.set_backend(None)
+        with pytest.raises(kernels.KernelBackendError,
+                           match=r"SHEARMIX_KERNELS='fast': allowed are numba, numpy"):
+            kernels.use_numba()
+    finally:
+        monkeypatch.delenv("SHEARMIX_KERNELS")
+        kernels.set_backend(None)

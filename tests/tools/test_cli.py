@@ -83,3 +83,17 @@ def test_unknown_physical_pass_is_bad_input(cli_process, case_file, tmp_path, mo
     assert "SHEARMIX_PHYSICAL_PASS='tiles': allowed are blocks, whole" in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "out" / "timeseries.h5").exists()
+
+
+@pytest.mark.parametrize("key,value,allowed", [("SHEARMIX_KERNELS", "fast", "numba, numpy"),
+                                               ("SHEARMIX_PHYSICAL_PASS", "tiles",
+                                                "blocks, whole")])
+def test_bad_environment_switch_exits_2_and_writes_nothing(cli_process, case_file, tmp_path,
+                                                           monkeypatch, key, value, allowed):
+    """A mistyped engine switch is refused in one line naming it and what is allowed."""
+    monkeypatch.setenv(key, value)
+    r = cli_process("run", str(case_file), "--output", "bad", cwd=tmp_path)
+    assert r.returncode == 2, r.stderr
+    assert r.stderr.strip().count("\n") == 0
+    assert f"{key}={value!r}" in r.stderr and allowed in r.stderr
+    assert not (tmp_path / "bad").exists()
