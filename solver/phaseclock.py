@@ -18,10 +18,15 @@ PHASES = ("frame to Cartesian", "x inverse", "yz inverse", "products", "yz forwa
 
 
 class PhaseClock:
-    """Accumulates wall time per named phase between consecutive laps."""
+    """Accumulates wall time per named phase between consecutive laps, and the
+    work each phase did (:meth:`count`): time a phase only next to what it
+    did, since a phase that does more than it should looks merely slow."""
 
     def __init__(self):
         self.totals: dict[str, float] = {}
+        #: work per phase in the phase's own unit (the round trip counts 1-D
+        #: x-FFTs for the x phases and x-planes for the (y, z) phases)
+        self.work: dict[str, int] = {}
         self._last = time.perf_counter()
 
     def start(self) -> None:
@@ -34,6 +39,11 @@ class PhaseClock:
         self.totals[phase] = self.totals.get(phase, 0.0) + (now - self._last)
         self._last = now
 
+    def count(self, phase: str, amount: int) -> None:
+        """Add ``amount`` to the work done in ``phase``."""
+        self.work[phase] = self.work.get(phase, 0) + amount
+
     def reset(self) -> None:
         self.totals.clear()
+        self.work.clear()
         self.start()

@@ -296,6 +296,8 @@ class SlabTransform:
                 for (a, b), plan in runs:
                     plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
                     plan.execute()
+                    if clock:  # work in 1-D x-FFTs
+                        clock.count("x inverse", (b - a) * nkz)
             rows_in, rows_out = inputs, outputs
         elif self._shared is not None:
             if self._dirty:
@@ -314,6 +316,8 @@ class SlabTransform:
                     plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
                     plan.execute()
                     np.copyto(cols[:, a:b, :nkz], spec[:, a:b, :nkz])
+                    if clock:
+                        clock.count("x inverse", (b - a) * nkz)
             if clock:
                 clock.lap("x inverse")
             self.comm.barrier()
@@ -323,6 +327,8 @@ class SlabTransform:
                 for (a, b), plan in runs:
                     plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
                     plan.execute()
+                    if clock:
+                        clock.count("x inverse", (b - a) * nkz)
                 self._exchange.to_x_slabs(spec, mid)
             rows_in, rows_out = rows[:m], rows[:k]
         if clock:
@@ -340,26 +346,32 @@ class SlabTransform:
         else:
             starts = range(0, self.grid.nx_local, nb)
         for i0 in starts:
+            done = 0
             for spec, block in zip(rows_in, blocks):
                 yi.update_arrays(spec[i0:i0 + nb, :, :nkz], cb[:, :, :nkz])
                 yi.execute()
                 cb[:, :, nkz:] = 0   # the 2/3 rule; the c2r transform overwrote it
                 zi.update_arrays(cb, block)
                 zi.execute()
-            if clock:
+                done += nb
+            if clock:  # work in x-planes
                 clock.lap("yz inverse")
+                clock.count("yz inverse", done)
             if pointwise is not None:
                 pointwise(blocks)
                 if clock:
                     clock.lap("products")
+            done = 0
             for block, spec in zip(blocks, rows_out):
                 zf.update_arrays(block, cb)
                 zf.execute()
                 yf.execute()   # in place in cb; only the kept ky go back
                 for a, b in trip["y_runs"]:
                     spec[i0:i0 + nb, a:b, :nkz] = cb[:, a:b, :nkz]
+                done += nb
             if clock:
                 clock.lap("yz forward")
+                clock.count("yz forward", done)
         if self.P > 1 and self._shared is not None:
             self.comm.barrier()
             if clock:
@@ -375,6 +387,8 @@ class SlabTransform:
             for (a, b), plan in zip(self._band_runs, trip["x_forward"]):
                 plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
                 plan.execute()
+                if clock:
+                    clock.count("x forward", (b - a) * nkz)
         if clock:
             clock.lap("x forward")
         if self.P > 1 and self._shared is not None:

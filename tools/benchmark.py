@@ -232,11 +232,12 @@ def phases_worker(model: str, n: int, steps: int) -> dict | None:
     ms["rest"] = 1e3 * total / steps - sum(ms.values())
     ms["step"] = 1e3 * total / steps
     per_rank = comm.gather(ms)
+    work = comm.gather({phase: w / steps for phase, w in clock.work.items()})
     if comm.rank != 0:
         return None
     return {"model": model, "n": n, "ranks": comm.size, "steps": steps,
             "physical_pass": "blocks" if sim.tendency.blocks else "whole",
-            "ms_per_step": per_rank}
+            "ms_per_step": per_rank, "work_per_step": work}
 
 
 def phases_table(records: list[dict]) -> list[str]:
@@ -263,6 +264,29 @@ def phases_table(records: list[dict]) -> list[str]:
                 # a phase that is next to nothing on one rank (the waits) has no ratio
                 row += (f"{slowest / base:12.2f}" if base > 0.01 * one[m]["step"]
                         else f"{'-':>12s}")
+        lines.append(row)
+    return lines + work_rows(records)
+
+
+def work_rows(records: list[dict]) -> list[str]:
+    """Text rows: each rank's share of the one-rank work of the counted phases
+    (the round trip's transforms), in the columns of :func:`phases_table`. On
+    P ranks each share should be near 1/P and the shares add up to 1: a phase
+    that is slow per unit of work shows in the times, one that does too much
+    work shows here. Empty when the records hold no counts."""
+    one = {r["model"]: (r.get("work_per_step") or [{}])[0] for r in records
+           if r["ranks"] == 1}
+    names = [p for p in ("x inverse", "yz inverse", "yz forward", "x forward")
+             if any(p in w for w in one.values())]
+    if not names:
+        return []
+    lines = ["work against 1 rank"]
+    for p in names:
+        row = f"{'  ' + p:24s}"
+        for r in records:
+            base = one.get(r["model"], {}).get(p, 0)
+            for w in r.get("work_per_step") or [{} for _ in r["ms_per_step"]]:
+                row += f"{w.get(p, 0) / base:12.2f}" if base else f"{'-':>12s}"
         lines.append(row)
     return lines
 

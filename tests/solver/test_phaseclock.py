@@ -52,3 +52,30 @@ def test_clock_covers_the_step_and_changes_nothing(make_case, monkeypatch, kind,
     assert all(t > 0 for p, t in clock.totals.items() if p != "wait")
     # laps fall inside the steps and never overlap
     assert sum(clock.totals.values()) < elapsed
+
+
+@pytest.mark.parametrize("model,params,fields_in,fields_out", [
+    ("lowpe", {"Re": 80.0, "BPe": 1.0}, 3, 5),
+    ("boussinesq", {"Re": 80.0, "B": 1.0, "Pr": 1.0}, 4, 8)])
+def test_clock_counts_the_round_trips_work(make_case, monkeypatch, model, params, fields_in,
+                                           fields_out):
+    """Per evaluation the round trip transforms the velocity (and T) in and the
+    products out (solver/tendency.py: 5 stresses, 3 fluxes of T): (y, z)
+    transforms of every x-plane of each field, x-FFTs of each kept (ky, kz)
+    column (2/3 rule, solver/grid.py) of each field, and no more."""
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 12, "Nz": 8},
+                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
+    sim = Simulation(case)
+    sim.advance()
+    clock = sim.fft.clock = PhaseClock()
+    trips0 = sim.fft.count_round_trips
+    sim.advance()
+    trips = sim.fft.count_round_trips - trips0
+    g = sim.grid
+    columns = int(g.keep_y.sum()) * g.nz_kept
+    assert trips == 4   # one per stage of the default scheme (cb3c, 4 stages)
+    assert clock.work["yz inverse"] == trips * fields_in * g.shape[0]
+    assert clock.work["yz forward"] == trips * fields_out * g.shape[0]
+    assert clock.work["x inverse"] == trips * fields_in * columns
+    assert clock.work["x forward"] == trips * fields_out * columns

@@ -70,6 +70,17 @@ def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
     text = markdown({"version": "x", "machine": "m", "records": [],
                      "extras": {"phases_lowpe_1": rec, "phases_lowpe_2": two}})
     assert "Where a step's time goes at 16^3" in text and "yz inverse" in text
+    # the work rows: one rank does all of its own work; two ranks that each did
+    # the whole of it (as the two-rank round trip once did) show 1.00, not 0.50
+    (work,) = rec["work_per_step"]
+    assert work["yz inverse"] == 4 * 3 * 16 and work["yz forward"] == 4 * 5 * 16
+    half = {p: w / 2 for p, w in work.items()}
+    rows = phases_table([rec, dict(two, work_per_step=[half, work])])
+    at = rows.index("work against 1 rank")
+    yz = [row for row in rows[at:] if row.strip().startswith("yz inverse")][0]
+    assert yz.split()[-3:] == ["1.00", "0.50", "1.00"]
+    assert "work against 1 rank" not in phases_table(
+        [dict(rec, work_per_step=None), dict(two, work_per_step=None)])
 
 
 @pytest.mark.mpi
@@ -82,6 +93,9 @@ def test_phases_on_two_ranks_include_the_waits(monkeypatch):
         assert "wait" in ms and ms["rest"] >= 0
         laps = sum(v for k, v in ms.items() if k not in ("rest", "step"))
         assert laps + ms["rest"] == pytest.approx(ms["step"])
+    # the two ranks' work adds up to one rank's: 4 fields in, 8 out, 16 planes
+    for phase, planes in (("yz inverse", 4 * 4 * 16), ("yz forward", 4 * 8 * 16)):
+        assert sum(w[phase] for w in rec["work_per_step"]) == planes
 
 
 @pytest.mark.mpi
