@@ -212,6 +212,25 @@ def scalar_advection(P, mask, scale, band, kvec, out):
     out[...] = -1j * (kx * P[0] + ky * P[1] + kz * P[2]) * mask
 
 
+def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> None:
+    """:func:`momentum_advection` (and :func:`scalar_advection` of ``fluxes`` into
+    ``out[2]`` unless None) for the local ky rows ``lo:hi`` only, compiled only.
+
+    The transforms are ``(nx, hi - lo, nz_kept)`` arrays of those rows (what
+    :meth:`solver.transforms.SlabTransform.round_trip` hands its ``finish``);
+    ``out`` is the whole tendency, of which rows ``lo:hi`` are written (zero
+    past the kz cutoff and at the dropped kx), the rest left alone.
+    """
+    keepx, keepy, nkz = band
+    kx, ky, kz = kvec
+    s, c, kh = basis.s[:, lo:hi], basis.c[:, lo:hi], basis.kh[:, lo:hi]
+    _momentum_nb(*stresses, scale, keepx, keepy[lo:hi], nkz, kx, ky[lo:hi], kz, s, c, kh,
+                 out[:2, :, lo:hi])
+    if fluxes is not None:
+        _scalar_flux_nb(*fluxes, scale, keepx, keepy[lo:hi], nkz, kx, ky[lo:hi], kz,
+                        out[2, :, lo:hi])
+
+
 # ---------------------------------------------------------------- physical products
 def _product_loop(f, g, out):
     n = out.size

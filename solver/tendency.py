@@ -63,6 +63,13 @@ class PseudoSpectralTendency:
             self.temperature = transform.empty_physical() if self.has_T else None
             # uu - ww beside the product buffer (uv): all five stresses in one pass
             self._uu_ww = transform.empty_physical() if advection is not None else None
+        #: the advection is made in the round trip, a few ky rows at a time
+        #: (compiled kernels; the NumPy path keeps the whole-array assembly)
+        self.chunked = self.blocks and advection is not None and kernels.use_numba()
+        keep = np.concatenate([[True], grid.keep_y, [True]]).astype(np.int8)
+        edges = np.flatnonzero(np.diff(keep))
+        #: local ky rows outside the 2/3-rule band, as (start, stop) runs
+        self._gaps = [(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
         for buf in self.P:  # band-pruned transforms leave the rest as it was: finite
             buf[...] = 0
         self.scratch = self.P[0]
@@ -182,6 +189,15 @@ class PseudoSpectralTendency:
         self._rate = self._speed2 = 0.0
         if self.advection is None:
             self.fft.round_trip(inputs, [], self._block_products)
+        elif self.chunked:
+            # the advection made from the products a few ky rows at a time, in
+            # cache (SlabTransform.round_trip's finish); the other rows are zero
+            self._out = out
+            self.fft.round_trip(inputs, P, self._block_products, self._advection_rows)
+            for a, b in self._gaps:
+                out[:, :, a:b] = 0
+            if clock:
+                clock.lap("advection assembly")
         else:
             self.fft.round_trip(inputs, P, self._block_products)
         if self.want_speed:
@@ -190,7 +206,9 @@ class PseudoSpectralTendency:
             self.max_speed = float(np.sqrt(comm.max(self._speed2)))
             if clock:
                 clock.lap("wait")
-        if self.advection is None:
+        if self.advection is None or self.chunked:
+            if self.has_T and not self.with_T and self.advection is not None:
+                out[2] = 0
             return
         if self.with_T:
             # P = [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
@@ -204,6 +222,23 @@ class PseudoSpectralTendency:
             stresses = (P[4], P[1], P[3], P[0], P[2])
         kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
+        if clock:
+            clock.lap("advection assembly")
+
+    def _advection_rows(self, chunks, lo, hi) -> None:
+        """``finish`` of the round trip: the advection of ky rows ``lo:hi`` from
+        their transformed products (order of :meth:`_block_products`)."""
+        if self.with_T:
+            # [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
+            stresses = (chunks[7], chunks[1], chunks[6], chunks[0], chunks[2])
+            fluxes = (chunks[4], chunks[5], chunks[3])
+        else:
+            # [uw, vv-ww, vw, uv, uu-ww]
+            stresses = (chunks[4], chunks[1], chunks[3], chunks[0], chunks[2])
+            fluxes = None
+        kernels.advection_rows(stresses, fluxes, self.scale, self.band, self.kvec, self.basis,
+                               self._out, lo, hi)
+        clock = self.fft.clock
         if clock:
             clock.lap("advection assembly")
 

@@ -49,6 +49,43 @@ def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
     assert fft.count_forward_band == 5
 
 
+@pytest.mark.parametrize("chunk_bytes", [1, 10 ** 9])
+def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes):
+    """With ``finish``: every kept ky row exactly once, in chunks of one row
+    (smallest buffers) or whole kept runs, each chunk the numpy.fft transform of
+    the products inside the 2/3-rule band."""
+    shape = (12, 16, 10)
+    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    monkeypatch.setattr(transforms, "CHUNK_BYTES", chunk_bytes)
+    grid = Grid(shape, (1.0, 2.0, 3.0))
+    fft = SlabTransform(grid, SerialComm(), effort="estimate")
+    fft.prepare_round_trip(5)
+    rng = np.random.default_rng(6)
+    nkz, cy = grid.nz_kept, grid.cutoff[1]
+    spectra = [np.fft.rfftn(rng.standard_normal(shape)) for _ in range(3)]
+    for sp in spectra:
+        sp[:, :, nkz:] = 0
+        sp[:, cy + 1:shape[1] - cy, :] = 0
+    u, v, w = (np.fft.irfftn(sp, s=shape, axes=(0, 1, 2)) for sp in spectra)
+    refs = [np.fft.rfftn(f)[:, :, :nkz] for f in (u, v, v * w, u * v, u * u - w * w)]
+    spec = [fft.empty_spectral() for _ in range(5)]
+    for sp, full in zip(spec, spectra):
+        sp[...] = full / np.prod(shape)
+    seen = []
+
+    def finish(chunks, lo, hi):
+        assert len(chunks) == 5 and all(c.shape == (shape[0], hi - lo, nkz) for c in chunks)
+        keep = np.broadcast_to(grid.keep_x[:, None, None], chunks[0].shape)
+        for got, ref in zip(chunks, refs):
+            assert np.abs(got - ref[:, lo:hi])[keep].max() < 1e-12 * np.abs(ref).max()
+        seen.extend(range(lo, hi))
+
+    fft.round_trip(spec[:3], spec, _products, finish)
+    assert seen == list(np.flatnonzero(grid.keep_y))
+    widths = {hi - lo for lo, hi in fft._trip["chunks"]}
+    assert widths == ({1} if chunk_bytes == 1 else {cy + 1, cy})
+
+
 def test_round_trip_needs_its_plans():
     fft = SlabTransform(Grid((8, 8, 8), (1.0, 1.0, 1.0)), SerialComm(), effort="estimate")
     with pytest.raises(RuntimeError, match="prepare_round_trip"):
