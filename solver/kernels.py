@@ -212,6 +212,16 @@ def scalar_advection(P, mask, scale, band, kvec, out):
     out[...] = -1j * (kx * P[0] + ky * P[1] + kz * P[2]) * mask
 
 
+def velocity_rows(a, p, basis, band, u, v, w, lo, hi) -> None:
+    """:func:`velocity` for the local ky rows ``lo:hi`` only, compiled only: ``u, v,
+    w`` are ``(nx, hi - lo, nz_kept)`` arrays (what
+    :meth:`solver.transforms.SlabTransform.round_trip` hands its ``start``),
+    zero at the dropped kx."""
+    keepx, keepy, nkz = band
+    _velocity_nb(a[:, lo:hi], p[:, lo:hi], basis.s[:, lo:hi], basis.c[:, lo:hi],
+                 basis.kh[:, lo:hi], basis.kz, keepx, keepy[lo:hi], nkz, u, v, w)
+
+
 def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> None:
     """:func:`momentum_advection` (and :func:`scalar_advection` of ``fluxes`` into
     ``out[2]`` unless None) for the local ky rows ``lo:hi`` only, compiled only.

@@ -179,21 +179,23 @@ class PseudoSpectralTendency:
 
     def _products_by_blocks(self, y: np.ndarray, out: np.ndarray) -> None:
         P, clock = self.P, self.fft.clock
-        kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
-        inputs = P[:3]
-        if self.with_T:
-            np.copyto(P[3], y[2])
-            inputs = P[:4]
-        if clock:
-            clock.lap("frame to Cartesian")
+        inputs = P[:4] if self.with_T else P[:3]
+        if not self.chunked:
+            kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
+            if self.with_T:
+                np.copyto(P[3], y[2])
+            if clock:
+                clock.lap("frame to Cartesian")
         self._rate = self._speed2 = 0.0
         if self.advection is None:
             self.fft.round_trip(inputs, [], self._block_products)
         elif self.chunked:
-            # the advection made from the products a few ky rows at a time, in
-            # cache (SlabTransform.round_trip's finish); the other rows are zero
-            self._out = out
-            self.fft.round_trip(inputs, P, self._block_products, self._advection_rows)
+            # the velocity made and the advection made from the products a few
+            # ky rows at a time, in cache (SlabTransform.round_trip's start and
+            # finish); the other rows of the tendency are zero
+            self._y, self._out = y, out
+            self.fft.round_trip(inputs, P, self._block_products, self._advection_rows,
+                                self._velocity_rows)
             for a, b in self._gaps:
                 out[:, :, a:b] = 0
             if clock:
@@ -224,6 +226,16 @@ class PseudoSpectralTendency:
                                    self.basis, out)
         if clock:
             clock.lap("advection assembly")
+
+    def _velocity_rows(self, chunks, lo, hi) -> None:
+        """``start`` of the round trip: u, v, w (and T) of ky rows ``lo:hi``."""
+        y = self._y
+        kernels.velocity_rows(y[0], y[1], self.basis, self.band, *chunks[:3], lo, hi)
+        if self.with_T:
+            np.copyto(chunks[3], y[2][:, lo:hi, :self.grid.nz_kept])
+        clock = self.fft.clock
+        if clock:
+            clock.lap("frame to Cartesian")
 
     def _advection_rows(self, chunks, lo, hi) -> None:
         """``finish`` of the round trip: the advection of ky rows ``lo:hi`` from

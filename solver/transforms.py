@@ -249,7 +249,7 @@ class SlabTransform:
         return physical
 
     # ------------------------------------------------------------ round trip
-    def round_trip(self, inputs, outputs, pointwise=None, finish=None) -> None:
+    def round_trip(self, inputs, outputs, pointwise=None, finish=None, start=None) -> None:
         """Inverse transforms, a pointwise pass on the grid, band-pruned forward transforms.
 
         The ``m`` arrays of ``inputs`` (spectral, destroyed; zero outside the
@@ -269,6 +269,14 @@ class SlabTransform:
         made steps 14-21% faster at 192^3 on one and two ranks, 4-7% for the
         low-Péclet model at 128^3 on two, within 2.5% either way at 128^3 on
         one; the ky part then 4-10% at 128^3 (medians of 3 launches each way).
+
+        With ``start``, the inputs are made the same way, a chunk of kept ky rows
+        at a time: ``start(chunks, lo, hi)`` fills the ``m`` buffers of shape
+        ``(nx, hi - lo, nz_kept)`` with the inputs' modes of local ky rows
+        ``lo:hi`` (zero at the dropped kx), which are x-transformed in cache and
+        copied on; ``inputs`` then only serve as work arrays (on one rank, and
+        with ``Alltoall`` transposes, their rows outside the kept ky must still
+        be zero: the block loop reads them there).
 
         With ``finish``, the forward results never go to ``outputs`` (which then
         only serve as work arrays and hold nothing useful afterwards): the
@@ -304,7 +312,11 @@ class SlabTransform:
         nkz = self.grid.nz_kept
         runs = list(zip(self._band_runs, trip["x_inverse"]))
         clock = self.clock
-        if self.P == 1:
+        if start is not None:
+            self._start_by_chunks(inputs, start, trip)
+            rows_in, rows_out = ((inputs, outputs) if self.P == 1 else
+                                 (rows[:m], rows[:k]))
+        elif self.P == 1:
             # x first, in place: the (y, z) transforms of each block then read the
             # inputs' own rows, and the outputs' rows take the forward results
             for spec in inputs:
@@ -408,6 +420,47 @@ class SlabTransform:
             self._dirty = False
             if clock:
                 clock.lap("wait")
+
+    def _start_by_chunks(self, inputs, start, trip) -> None:
+        """The round trip's inverse x-FFTs a chunk of kept ky rows at a time, the
+        chunks made by ``start`` (see :meth:`round_trip`), then where the block
+        loop reads them: the inputs' own rows (one rank), the shared columns, or
+        the inputs and an exchange."""
+        nx, nkz, clock = self.grid.shape[0], self.grid.nz_kept, self.clock
+        m = len(inputs)
+        shared = self.P > 1 and self._shared is not None
+        if shared and self._dirty:
+            # a plain transform wrote all of the turn arrays and may still be
+            # reading them: restore the zeros outside the kept ky, then wait
+            for mine in trip["rows"][:len(self._shared)]:
+                for a, b in trip["y_gaps"]:
+                    mine[:, a:b, :nkz] = 0
+            self.comm.barrier()
+            if clock:
+                clock.lap("wait")
+        targets = trip["cols"][:m] if shared else inputs
+        step = trip["chunk_planes"]
+        for lo, hi in trip["chunks"]:
+            width = hi - lo
+            bufs = [buf[:, :width] for buf in trip["chunk_buffers"][:m]]
+            start(bufs, lo, hi)
+            plan = trip["chunk_plans_inverse"][width]
+            for buf in bufs:
+                plan.update_arrays(buf, buf)
+                plan.execute()
+            for i0 in range(0, nx, step):
+                for buf, target in zip(bufs, targets):
+                    np.copyto(target[i0:i0 + step, lo:hi, :nkz], buf[i0:i0 + step])
+            if clock:
+                clock.count("x inverse", m * width * nkz)
+                clock.lap("x inverse")
+        if shared:
+            self.comm.barrier()
+        elif self.P > 1:
+            for spec, mid in zip(inputs, trip["rows"]):
+                self._exchange.to_x_slabs(spec, mid)
+        if clock:
+            clock.lap("wait" if shared else "x inverse")
 
     def _x_forward(self, sources, outputs, trip) -> None:
         """The round trip's x-FFTs into ``outputs`` (from shared columns: a copy,
@@ -550,12 +603,13 @@ class SlabTransform:
         widest = max((hi - lo for lo, hi in chunks), default=1)
         trip["chunk_buffers"] = [pyfftw.empty_aligned((g.shape[0], widest, nkz),
                                                       dtype=np.complex128) for _ in range(count)]
-        trip["chunk_plans"] = {}
+        trip["chunk_plans"], trip["chunk_plans_inverse"] = {}, {}
         for width in sorted({hi - lo for lo, hi in chunks}):
             view = trip["chunk_buffers"][0][:, :width]
-            trip["chunk_plans"][width] = pyfftw.FFTW(view, view, axes=(0,),
-                                                     direction="FFTW_FORWARD", flags=flags,
-                                                     threads=threads)
+            for key, direction in (("chunk_plans", "FFTW_FORWARD"),
+                                   ("chunk_plans_inverse", "FFTW_BACKWARD")):
+                trip[key][width] = pyfftw.FFTW(view, view, axes=(0,), direction=direction,
+                                               flags=flags, threads=threads)
         trip["chunk_planes"] = max(1, 16 * 128 // g.shape[0])
         cb = pyfftw.empty_aligned((nb, ny, nzc), dtype=np.complex128)
         trip["cblock"] = cb

@@ -56,17 +56,19 @@ def test_distributed_fft_matches_numpy(tmp_path, nranks, transpose):
 
 @pytest.mark.parametrize("model", ["lowpe", "boussinesq"])
 def test_same_result_on_1_2_and_4_ranks(tmp_path, model):
-    """Against one rank with whole arrays: 2 and 4 ranks either way of making
-    the products (block-wise round trips and whole arrays)."""
+    """Against one rank with whole arrays: 1, 2 and 4 ranks either way of making
+    the products (block-wise round trips and whole arrays), and block-wise
+    with the transposes by message passing."""
     states = {}
-    runs = [(1, "whole"), (2, "whole"), (4, "whole"), (2, "blocks"), (4, "blocks")]
-    for n, kind in runs:
-        out = str(tmp_path / f"s{n}{kind}.npz")
-        _launch(n, "steps", model, "50", out, physical_pass=kind)
+    runs = [(1, "whole", None), (2, "whole", None), (4, "whole", None), (1, "blocks", None),
+            (2, "blocks", None), (4, "blocks", None), (2, "blocks", "alltoall")]
+    for n, kind, transpose in runs:
+        out = str(tmp_path / f"s{n}{kind}{transpose}.npz")
+        _launch(n, "steps", model, "50", out, physical_pass=kind, transpose=transpose)
         r = np.load(out)
         assert int(r["size"]) == n
-        states[n, kind] = (r["state"], float(r["t"]))
-    ref, t_ref = states[1, "whole"]
+        states[n, kind, transpose] = (r["state"], float(r["t"]))
+    ref, t_ref = states[1, "whole", None]
     assert np.abs(ref).max() > 0.1
     for key in runs[1:]:
         s, t = states[key]

@@ -82,6 +82,23 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
 
     fft.round_trip(spec[:3], spec, _products, finish)
     assert seen == list(np.flatnonzero(grid.keep_y))
+    # the inputs made a chunk at a time too (start): the same products
+    made = []
+
+    def start(chunks, lo, hi):
+        assert len(chunks) == 3 and all(c.shape == (shape[0], hi - lo, nkz) for c in chunks)
+        for c, full in zip(chunks, spectra):
+            c[...] = full[:, lo:hi, :nkz] / np.prod(shape)
+        made.extend(range(lo, hi))
+
+    seen.clear()
+    work = [fft.empty_spectral() for _ in range(5)]
+    for w_ in work:
+        w_[...] = 7.0   # work arrays only: what they hold is not read
+    for sp in work[:3]:
+        sp[:, ~grid.keep_y] = 0   # (but the rows outside the kept ky stay zero)
+    fft.round_trip(work[:3], work, _products, finish, start)
+    assert made == seen == list(np.flatnonzero(grid.keep_y))
     widths = {hi - lo for lo, hi in fft._trip["chunks"]}
     assert widths == ({1} if chunk_bytes == 1 else {cy + 1, cy})
 
