@@ -86,12 +86,13 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
         if (m * n_trips, k * n_trips, n_band) != (n_inv, n_fwd, n_fwd):
             raise RuntimeError("a step mixed round trips and plain transforms")
 
-        # as in the step: the forward x-FFTs by chunks handed on (here to nothing)
-        finish = (lambda chunks, lo, hi: None) if nl.chunked else None
+        # as in the step: the x-FFTs by chunks of rows, made and handed on by
+        # nothing here (the buffers hold the last chunks' modes: finite numbers)
+        pass_on = (lambda chunks, lo, hi: None) if nl.chunked else None
 
         def transforms_alone():
             for _ in range(n_trips):
-                fft.round_trip(nl.P[:m], nl.P[:k], None, finish)
+                fft.round_trip(nl.P[:m], nl.P[:k], None, pass_on, pass_on)
     else:
         # whole-array pass: inverse into the velocity (and T) work arrays,
         # forward from the product buffer into the product transforms
