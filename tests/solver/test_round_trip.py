@@ -197,16 +197,18 @@ def test_cpu_lists_as_linux_writes_them():
 
 def test_reported_cache_capped_per_cpu_sharing_it(tmp_path):
     """A guest that sees 2 CPUs of a socket with a 480 MiB L3 (the Xeon guest of
-    README "Performance") counts 2 x 16 MiB; a 32 MiB L3 shared by 2 CPUs stays
-    whole; a cache that does not list its CPUs is taken as reported."""
+    README "Performance") counts 2 x 4 MiB, as does one with a 32 MiB L3; a
+    16 MiB L3 shared by 16 CPUs stays whole; a cache that does not list its
+    CPUs is taken as reported."""
     cap = productpass.CACHE_CAP_PER_CPU
+    assert cap == 4 * 1024 ** 2
     (tmp_path / "index3").mkdir()
     (tmp_path / "index3" / "size").write_text("491520K\n")
     assert productpass.last_level_cache_bytes(str(tmp_path)) == 480 * 1024 ** 2
     (tmp_path / "index3" / "shared_cpu_list").write_text("0-1\n")
     assert productpass.last_level_cache_bytes(str(tmp_path)) == 2 * cap
     (tmp_path / "index3" / "size").write_text("32768K\n")
-    assert productpass.last_level_cache_bytes(str(tmp_path)) == 32 * 1024 ** 2 == 2 * cap
+    assert productpass.last_level_cache_bytes(str(tmp_path)) == 2 * cap
     (tmp_path / "index3" / "size").write_text("16384K\n")
     (tmp_path / "index3" / "shared_cpu_list").write_text("0-15\n")
     assert productpass.last_level_cache_bytes(str(tmp_path)) == 16 * 1024 ** 2
