@@ -1,5 +1,6 @@
 """Slab decomposition under MPI: transforms against numpy.fft, and results
-independent of the rank count (1, 2 and 4 ranks; 4 oversubscribe 2 cores)."""
+independent of the rank count (1, 2, 4 and 8 ranks; more than 2 oversubscribe
+2 cores)."""
 import os
 import shutil
 import subprocess
@@ -7,6 +8,8 @@ import sys
 
 import numpy as np
 import pytest
+
+from solver.grid import Grid
 
 PROBE = os.path.join(os.path.dirname(__file__), "mpi_probe.py")
 
@@ -74,3 +77,18 @@ def test_same_result_on_1_2_and_4_ranks(tmp_path, model):
         s, t = states[key]
         assert t == pytest.approx(t_ref, rel=1e-12)
         assert np.abs(s - ref).max() / np.abs(ref).max() < 1e-12
+
+
+def test_ranks_whose_columns_are_all_dropped(tmp_path):
+    """8 ranks on Ny = 16: ranks 3 and 4 hold ky = 6, 7 and -8, -7, all past the
+    2/3-rule cutoff (5), so their round trips have no kept rows to transform,
+    make or hand on; block-wise (shared memory and Alltoall) against one rank."""
+    assert [int(Grid((16, 16, 8), (1.0,) * 3, r, 8).keep_y.sum()) for r in (3, 4)] == [0, 0]
+    _launch(1, "steps", "lowpe", "20", str(tmp_path / "one.npz"), physical_pass="whole")
+    ref = np.load(tmp_path / "one.npz")["state"]
+    for transpose in (None, "alltoall"):
+        out = str(tmp_path / f"eight{transpose}.npz")
+        _launch(8, "steps", "lowpe", "20", out, physical_pass="blocks", transpose=transpose)
+        r = np.load(out)
+        assert int(r["size"]) == 8
+        assert np.abs(r["state"] - ref).max() < 1e-12 * np.abs(ref).max()
