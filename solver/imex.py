@@ -161,8 +161,11 @@ class LowStorageIMEX:
         if not tableau.is_low_storage():
             raise ValueError(f"tableau {tableau.name} has no low-storage form")
         self.tableau, self.explicit, self.operator = tableau, explicit, operator
-        self.stage = np.empty_like(template)
+        # zero outside the 2/3-rule band from the start: the fused path copies
+        # and updates the band only, so the stage stays zero there
+        self.stage = np.zeros_like(template)
         self.tendency = np.empty_like(template)
+        self._band = _band_slices(operator)
 
     def step(self, x: np.ndarray, t: float, h: float, n0: np.ndarray | None = None):
         """Advance ``x`` (in place) by ``h``; ``n0`` is ``N(x, t)`` if already known."""
@@ -170,7 +173,12 @@ class LowStorageIMEX:
         s = tab.stages
         y, z = self.stage, self.tendency
         fused = kernels.use_numba() and hasattr(self.operator, "flat_entry")
-        np.copyto(y, x)
+        if fused and self._band is not None:
+            # x and y are zero outside the band (the fused update visits it only)
+            for where in self._band:
+                y[where] = x[where]
+        else:
+            np.copyto(y, x)
         for i in range(s):
             if i == 0 and n0 is not None:
                 if n0 is not z:
@@ -196,6 +204,22 @@ class LowStorageIMEX:
             y += hex_ * z
             self.operator.solve(y, h * tab.A_im[nxt, nxt])
         return x
+
+
+def _runs(keep: np.ndarray) -> list[slice]:
+    """The True runs of a boolean array as slices."""
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], keep.astype(np.int8), [0]])))
+    return [slice(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
+
+
+def _band_slices(operator) -> list[tuple] | None:
+    """Index tuples covering the 2/3-rule band of a stacked state (kept kx runs x
+    kept ky runs x kz below the cutoff), or None for an operator without a grid."""
+    grid = getattr(operator, "grid", None)
+    if grid is None:
+        return None
+    kz = slice(0, grid.nz_kept)
+    return [(slice(None), xs, ys, kz) for xs in _runs(grid.keep_x) for ys in _runs(grid.keep_y)]
 
 
 def make_stepper(tableau: IMEXTableau, explicit, operator, template):

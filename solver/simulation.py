@@ -105,6 +105,9 @@ class Simulation:
         self._n0 = getattr(self.stepper, "tendency", None)
         if self._n0 is None:
             self._n0 = np.empty_like(self.state)
+        # only the tendency writes that array: its zeros outside the band need
+        # writing once, not every evaluation
+        self.tendency.owned_output = self._n0
         kernels.warm_up()
         self.t = 0.0
         self.step_count = 0

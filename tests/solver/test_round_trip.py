@@ -212,3 +212,47 @@ def test_reported_cache_capped_per_cpu_sharing_it(tmp_path):
     (tmp_path / "index3" / "size").write_text("16384K\n")
     (tmp_path / "index3" / "shared_cpu_list").write_text("0-15\n")
     assert productpass.last_level_cache_bytes(str(tmp_path)) == 16 * 1024 ** 2
+
+
+@pytest.mark.parametrize("scheme", ["cb3c", "ars343"])
+def test_owned_output_zeroed_once_changes_nothing(make_case, monkeypatch, scheme):
+    """The chunked pass writes the zeros outside the kept ky of the stepper's own
+    register once (and the low-storage stage copies the band only): the same
+    states, bit for bit, as rezeroing and copying everything each time, with the
+    low-storage driver and with the reference driver's fresh stage arrays."""
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
+                     grid={"Nx": 16, "Ny": 12, "Nz": 8}, time={"scheme": scheme},
+                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 8})
+    fast, plain = Simulation(case), Simulation(case)
+    assert fast.tendency.chunked and fast.tendency.owned_output is fast._n0
+    plain.tendency.owned_output = None
+    if hasattr(plain.stepper, "_band"):
+        plain.stepper._band = None
+    for sim in (fast, plain):
+        sim.add_mode(1, 1, 1, "poloidal", 0.3)
+        for _ in range(4):
+            sim.advance()
+    assert np.abs(plain.state).max() > 0.05
+    assert np.array_equal(fast.state, plain.state)
+
+
+def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
+    """A forcing wavenumber past the 2/3-rule cutoff (kf = 6 on Ny = 16, cutoff 5;
+    case files refuse it, the tendency does not rely on that) lands in a row the
+    chunked pass does not write: that row of the stepper's register is rezeroed
+    every evaluation, so it holds one forcing, not several."""
+    from solver.terms import ShearForcing
+    from solver.tendency import PseudoSpectralTendency
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3}))
+    nl = PseudoSpectralTendency(sim.grid, sim.basis, sim.fft, sim.fields, sim.model.advection,
+                                ShearForcing(F0=1.0, kf=6.0))
+    assert nl.chunked and nl._forcing_in_gaps
+    assert not sim.tendency._forcing_in_gaps      # the case's own forcing is kept
+    nl.owned_output = out = np.zeros_like(sim.state)
+    idx, fa, _ = nl.forcing[0]
+    assert not sim.grid.keep_y[idx[1]]
+    for _ in range(3):
+        nl(sim.state, 0.0, out)
+    assert out[0][idx] == fa
