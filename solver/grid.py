@@ -28,6 +28,12 @@ def allowed_rank_counts(shape) -> list[int]:
     return [p for p in range(1, g + 1) if g % p == 0]
 
 
+def true_runs(mask) -> list[tuple[int, int]]:
+    """The runs of True in a 1-D boolean array, as ``(start, stop)`` pairs."""
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], np.asarray(mask, dtype=np.int8), [0]])))
+    return [(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
+
+
 def dealias_cutoff(n: int) -> int:
     """Largest kept wave index under the 2/3 rule for ``n`` points."""
     return (n - 1) // 3

@@ -21,6 +21,7 @@ from fractions import Fraction
 import numpy as np
 
 from . import kernels
+from .grid import true_runs
 
 
 @dataclass(frozen=True)
@@ -206,12 +207,6 @@ class LowStorageIMEX:
         return x
 
 
-def _runs(keep: np.ndarray) -> list[slice]:
-    """The True runs of a boolean array as slices."""
-    edges = np.flatnonzero(np.diff(np.concatenate([[0], keep.astype(np.int8), [0]])))
-    return [slice(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
-
-
 def _band_slices(operator) -> list[tuple] | None:
     """Index tuples covering the 2/3-rule band of a stacked state (kept kx runs x
     kept ky runs x kz below the cutoff), or None for an operator without a grid."""
@@ -219,7 +214,8 @@ def _band_slices(operator) -> list[tuple] | None:
     if grid is None:
         return None
     kz = slice(0, grid.nz_kept)
-    return [(slice(None), xs, ys, kz) for xs in _runs(grid.keep_x) for ys in _runs(grid.keep_y)]
+    return [(slice(None), slice(*xs), slice(*ys), kz)
+            for xs in true_runs(grid.keep_x) for ys in true_runs(grid.keep_y)]
 
 
 def make_stepper(tableau: IMEXTableau, explicit, operator, template):

@@ -19,7 +19,7 @@ import numpy as np
 
 from . import kernels
 from .basis import CrayaHerring
-from .grid import Grid
+from .grid import Grid, true_runs
 from .terms import Advection, ShearForcing
 from .productpass import PASS_CHOICES, physical_pass, product_fields
 from .transforms import SlabTransform
@@ -66,10 +66,8 @@ class PseudoSpectralTendency:
         #: the advection is made in the round trip, a few ky rows at a time
         #: (compiled kernels; the NumPy path keeps the whole-array assembly)
         self.chunked = self.blocks and advection is not None and kernels.use_numba()
-        keep = np.concatenate([[True], grid.keep_y, [True]]).astype(np.int8)
-        edges = np.flatnonzero(np.diff(keep))
         #: local ky rows outside the 2/3-rule band, as (start, stop) runs
-        self._gaps = [(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
+        self._gaps = true_runs(~grid.keep_y)
         for buf in self.P:  # band-pruned transforms leave the rest as it was: finite
             buf[...] = 0
         self.scratch = self.P[0]
@@ -218,24 +216,30 @@ class PseudoSpectralTendency:
             self.max_speed = float(np.sqrt(comm.max(self._speed2)))
             if clock:
                 clock.lap("wait")
-        if self.advection is None or self.chunked:
-            if self.has_T and not self.with_T and self.advection is not None:
-                out[2] = 0
+        if self.advection is None:
             return
-        if self.with_T:
-            # P = [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
-            kernels.scalar_advection((P[4], P[5], P[3]), self.mask, self.scale, self.band,
-                                     self.kvec, out[2])
-            stresses = (P[7], P[1], P[6], P[0], P[2])
-        else:
-            # P = [uw, vv-ww, vw, uv, uu-ww]
-            if self.has_T:
-                out[2] = 0
-            stresses = (P[4], P[1], P[3], P[0], P[2])
+        if self.has_T and not self.with_T:
+            out[2] = 0
+        if self.chunked:
+            return
+        stresses, fluxes = self._products_in_order(P)
+        if fluxes is not None:
+            kernels.scalar_advection(fluxes, self.mask, self.scale, self.band, self.kvec,
+                                     out[2])
         kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
         if clock:
             clock.lap("advection assembly")
+
+    def _products_in_order(self, P):
+        """``(stresses, fluxes)`` from the round trip's outputs in the order of
+        :meth:`_block_products`: ``uu-ww, vv-ww, uv, uw, vw`` and ``uT, vT, wT``
+        (None without temperature advection)."""
+        if self.with_T:
+            # P = [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
+            return (P[7], P[1], P[6], P[0], P[2]), (P[4], P[5], P[3])
+        # P = [uw, vv-ww, vw, uv, uu-ww]
+        return (P[4], P[1], P[3], P[0], P[2]), None
 
     def _velocity_rows(self, chunks, lo, hi) -> None:
         """``start`` of the round trip: u, v, w (and T) of ky rows ``lo:hi``."""
@@ -250,14 +254,7 @@ class PseudoSpectralTendency:
     def _advection_rows(self, chunks, lo, hi) -> None:
         """``finish`` of the round trip: the advection of ky rows ``lo:hi`` from
         their transformed products (order of :meth:`_block_products`)."""
-        if self.with_T:
-            # [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
-            stresses = (chunks[7], chunks[1], chunks[6], chunks[0], chunks[2])
-            fluxes = (chunks[4], chunks[5], chunks[3])
-        else:
-            # [uw, vv-ww, vw, uv, uu-ww]
-            stresses = (chunks[4], chunks[1], chunks[3], chunks[0], chunks[2])
-            fluxes = None
+        stresses, fluxes = self._products_in_order(chunks)
         kernels.advection_rows(stresses, fluxes, self.scale, self.band, self.kvec, self.basis,
                                self._out, lo, hi)
         clock = self.fft.clock

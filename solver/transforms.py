@@ -35,13 +35,16 @@ import tempfile
 import numpy as np
 import pyfftw
 
-from .grid import Grid
+from .grid import Grid, true_runs
 
 #: bytes of one physical block of the round trip (a few fit in a core's L2 cache)
 BLOCK_BYTES = 256 * 1024
 
-#: bytes of the chunk buffers of a round trip with ``finish`` (all its fields):
-#: a chunk is x-transformed and handed on while it is in cache
+#: bytes of the chunk buffers of a round trip with ``start`` and ``finish`` (all
+#: its fields): a chunk is made, x-transformed and handed on while it is in
+#: cache. Against whole-array frame and advection passes, in one process with
+#: steps alternating at 128^3: 2-rank steps 0.780 (low-Peclet) and 0.804
+#: (full), 1-rank 0.970 and 0.988 (2-core Xeon guest)
 CHUNK_BYTES = 4 * 1024 * 1024
 
 _EFFORT_FLAG = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE",
@@ -149,9 +152,7 @@ class SlabTransform:
         """Plans of :meth:`forward_band`: the x-FFT over the kept (ky, kz) columns only."""
         g = self.grid
         nkz = g.nz_kept
-        keep = np.concatenate([[False], g.keep_y, [False]]).astype(np.int8)
-        edges = np.flatnonzero(np.diff(keep))
-        self._band_runs = [(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2])]
+        self._band_runs = true_runs(g.keep_y)
         if self.P == 1:
             self._band_yz = pyfftw.FFTW(self.physical, self.spectral, axes=(1, 2),
                                         direction="FFTW_FORWARD", flags=flags, threads=threads)
@@ -286,8 +287,7 @@ class SlabTransform:
         ``(nx, hi - lo, nz_kept)`` for the local ky rows ``lo:hi`` (only kept
         rows; kx all, correct inside the 2/3-rule band). What reads the
         products (the advection) thus reads them from cache instead of from
-        full arrays. Measured in one process with steps alternating at 128^3:
-        see :data:`CHUNK_BYTES`.
+        full arrays (measured: :data:`CHUNK_BYTES`).
 
         On one node (shared rows, :attr:`dynamic_blocks`) the ranks claim
         blocks from a node counter instead of each taking its own x-planes,
@@ -327,15 +327,7 @@ class SlabTransform:
                         clock.count("x inverse", (b - a) * nkz)
             rows_in, rows_out = inputs, outputs
         elif self._shared is not None:
-            if self._dirty:
-                # a plain transform wrote all of the turn arrays and may still be
-                # reading them: restore the zeros outside the kept ky, then wait
-                for mine in rows[:len(self._shared)]:
-                    for a, b in trip["y_gaps"]:
-                        mine[:, a:b, :nkz] = 0
-                self.comm.barrier()
-                if clock:
-                    clock.lap("wait")
+            self._settle_shared(trip)
             # in place, then a copy into the shared columns: faster than an FFT
             # straight into them (see prepare_round_trip)
             for spec, cols in zip(inputs, trip["cols"]):
@@ -426,20 +418,12 @@ class SlabTransform:
         chunks made by ``start`` (see :meth:`round_trip`), then where the block
         loop reads them: the inputs' own rows (one rank), the shared columns, or
         the inputs and an exchange."""
-        nx, nkz, clock = self.grid.shape[0], self.grid.nz_kept, self.clock
+        nkz, clock = self.grid.nz_kept, self.clock
         m = len(inputs)
         shared = self.P > 1 and self._shared is not None
-        if shared and self._dirty:
-            # a plain transform wrote all of the turn arrays and may still be
-            # reading them: restore the zeros outside the kept ky, then wait
-            for mine in trip["rows"][:len(self._shared)]:
-                for a, b in trip["y_gaps"]:
-                    mine[:, a:b, :nkz] = 0
-            self.comm.barrier()
-            if clock:
-                clock.lap("wait")
+        if shared:
+            self._settle_shared(trip)
         targets = trip["cols"][:m] if shared else inputs
-        step = trip["chunk_planes"]
         for lo, hi in trip["chunks"]:
             width = hi - lo
             bufs = [buf[:, :width] for buf in trip["chunk_buffers"][:m]]
@@ -448,9 +432,7 @@ class SlabTransform:
             for buf in bufs:
                 plan.update_arrays(buf, buf)
                 plan.execute()
-            for i0 in range(0, nx, step):
-                for buf, target in zip(bufs, targets):
-                    np.copyto(target[i0:i0 + step, lo:hi, :nkz], buf[i0:i0 + step])
+            self._copy_by_planes([t[:, lo:hi, :nkz] for t in targets], bufs, trip)
             if clock:
                 clock.count("x inverse", m * width * nkz)
                 clock.lap("x inverse")
@@ -461,6 +443,30 @@ class SlabTransform:
                 self._exchange.to_x_slabs(spec, mid)
         if clock:
             clock.lap("wait" if shared else "x inverse")
+
+    def _settle_shared(self, trip) -> None:
+        """Before a round trip writes the shared columns: if a plain transform
+        used the turn arrays, restore their zeros outside the kept ky and wait
+        until every rank is done reading them."""
+        if not self._dirty:
+            return
+        nkz = self.grid.nz_kept
+        for mine in trip["rows"][:len(self._shared)]:
+            for a, b in trip["y_gaps"]:
+                mine[:, a:b, :nkz] = 0
+        self.comm.barrier()
+        if self.clock:
+            self.clock.lap("wait")
+
+    @staticmethod
+    def _copy_by_planes(targets, sources, trip) -> None:
+        """``targets[j][...] = sources[j]``, a few x-planes of every field in turn:
+        the order the block loop wrote the rows in, several streams at once
+        (field by field, the shared columns read at a third of the speed)."""
+        step = trip["chunk_planes"]
+        for i0 in range(0, targets[0].shape[0] if targets else 0, step):
+            for target, source in zip(targets, sources):
+                np.copyto(target[i0:i0 + step], source[i0:i0 + step])
 
     def _x_forward(self, sources, outputs, trip) -> None:
         """The round trip's x-FFTs into ``outputs`` (from shared columns: a copy,
@@ -482,17 +488,12 @@ class SlabTransform:
     def _finish_by_chunks(self, sources, finish, trip) -> None:
         """The round trip's x-FFTs a chunk of kept ky rows at a time, handed to
         ``finish`` (see :meth:`round_trip`)."""
-        nx, nkz, clock = self.grid.shape[0], self.grid.nz_kept, self.clock
+        nkz, clock = self.grid.nz_kept, self.clock
         k = len(sources)
-        step = trip["chunk_planes"]
         for lo, hi in trip["chunks"]:
             rows = hi - lo
             bufs = [buf[:, :rows] for buf in trip["chunk_buffers"][:k]]
-            # a few x-planes of every field in turn: the rows come back in the
-            # order the block loop wrote them, several streams at once
-            for i0 in range(0, nx, step):
-                for buf, source in zip(bufs, sources):
-                    np.copyto(buf[i0:i0 + step], source[i0:i0 + step, lo:hi, :nkz])
+            self._copy_by_planes(bufs, [src[:, lo:hi, :nkz] for src in sources], trip)
             plan = trip["chunk_plans"][rows]
             for buf in bufs:
                 plan.update_arrays(buf, buf)
@@ -591,7 +592,7 @@ class SlabTransform:
         c = g.cutoff[1]
         trip["y_runs"] = [(0, c + 1), (ny - c, ny)]
         trip["y_gaps"] = [(c + 1, ny - c)]
-        # chunks of kept ky rows for round trips with ``finish``
+        # chunks of kept ky rows for round trips with ``start`` and ``finish``
         per_row = count * g.shape[0] * nkz * 16
         most = max(1, CHUNK_BYTES // per_row)
         chunks = []
@@ -610,6 +611,8 @@ class SlabTransform:
                                    ("chunk_plans_inverse", "FFTW_BACKWARD")):
                 trip[key][width] = pyfftw.FFTW(view, view, axes=(0,), direction=direction,
                                                flags=flags, threads=threads)
+        # x-planes per field and turn of the chunk copies: 16 at 128^3 (where it
+        # was probed: 2, 8 and 32 gave the same), as many bytes elsewhere
         trip["chunk_planes"] = max(1, 16 * 128 // g.shape[0])
         cb = pyfftw.empty_aligned((nb, ny, nzc), dtype=np.complex128)
         trip["cblock"] = cb

@@ -256,3 +256,12 @@ def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
     for _ in range(3):
         nl(sim.state, 0.0, out)
     assert out[0][idx] == fa
+
+
+def test_true_runs():
+    from solver.grid import true_runs
+    assert true_runs(np.array([1, 1, 0, 0, 1], dtype=bool)) == [(0, 2), (4, 5)]
+    assert true_runs(np.zeros(3, dtype=bool)) == []
+    assert true_runs(np.ones(4, dtype=bool)) == [(0, 4)]
+    grid = Grid((12, 16, 10), (1.0, 1.0, 1.0))
+    assert true_runs(grid.keep_y) == [(0, grid.cutoff[1] + 1), (16 - grid.cutoff[1], 16)]
