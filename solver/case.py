@@ -20,7 +20,7 @@ from typing import Any, Callable
 
 import yaml
 
-from .grid import dealias_cutoff
+from shearmix.solver.grid import dealias_cutoff
 
 MODELS = ("boussinesq", "lowpe")
 INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")

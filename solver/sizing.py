@@ -3,10 +3,9 @@ from __future__ import annotations
 
 import math
 
-from .case import Case
-from .grid import allowed_rank_counts, dealias_cutoff
-from .productpass import physical_pass, product_fields
-
+from shearmix.solver.case import Case
+from shearmix.solver.compute.productpass import physical_pass, product_fields
+from shearmix.solver.grid import allowed_rank_counts, dealias_cutoff
 
 #: resident memory of Python and the libraries per rank (a 16^3 run, measured: ~250 MB)
 LIBRARY_BYTES = 250 * 2 ** 20

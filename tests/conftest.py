@@ -7,8 +7,6 @@ import sys
 import pytest
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-if ROOT not in sys.path:
-    sys.path.insert(0, ROOT)
 
 # plans made quickly and no wisdom file touched by the tests
 BASE = {
@@ -32,7 +30,7 @@ def merge(base, extra):
 
 @pytest.fixture
 def make_case():
-    from solver.case import case_from_dict
+    from shearmix.solver.case import case_from_dict
 
     def _make(**sections):
         base = copy.deepcopy(BASE)
@@ -47,8 +45,8 @@ def cli_process():
     """``shearmix`` in a fresh serial Python process; ``pre`` is code run first
     (e.g. to make a module unimportable or to kill the process mid-write)."""
     def run(*args, cwd, pre=""):
-        code = f"{pre}\nimport sys\nfrom tools.cli import main\nsys.exit(main(sys.argv[1:]))"
-        env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
+        code = f"{pre}\nimport sys\nfrom shearmix.tools.cli import main\nsys.exit(main(sys.argv[1:]))"
+        env = dict(os.environ, SHEARMIX_SERIAL="1")
         return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
                               capture_output=True, text=True, timeout=120)
     return run

@@ -22,7 +22,7 @@ import sys
 EXIT_BAD_INPUT = 2
 
 #: optional subcommand families: module with add_arguments(subparsers)
-_PLUGINS = ("tools.stability.cli", "tools.analysis_cli", "tools.sweep_cli", "tools.plot_cli")
+_PLUGINS = ("shearmix.tools.stability.cli", "shearmix.tools.analysis.cli", "shearmix.tools.sweeps.cli", "shearmix.tools.plots.cli")
 
 
 def _fail(message: str, code: int = EXIT_BAD_INPUT) -> int:
@@ -31,7 +31,7 @@ def _fail(message: str, code: int = EXIT_BAD_INPUT) -> int:
 
 
 def _load(args):
-    from solver.case import CaseError, load_case
+    from shearmix.solver.case import CaseError, load_case
     try:
         return load_case(args.case, args.set or None), None
     except CaseError as exc:
@@ -39,7 +39,7 @@ def _load(args):
 
 
 def cmd_check(args) -> int:
-    from solver.sizing import derived
+    from shearmix.solver.sizing import derived
     case, err = _load(args)
     if err:
         return _fail(err)
@@ -68,7 +68,7 @@ def cmd_check(args) -> int:
 
 
 def cmd_keys(args) -> int:
-    from solver.case import key_table
+    from shearmix.solver.case import key_table
     if args.markdown:
         print("| key | default | allowed | meaning |")
         print("|---|---|---|---|")
@@ -92,11 +92,11 @@ def _on_rank0(comm, work):
 
 
 def cmd_run(args) -> int:
-    from solver.case import CaseError
-    from solver.grid import GridError, allowed_rank_counts
-    from solver.initial import InitialStateError
-    from solver.parallel import world
-    from solver.series import SERIES_FILE
+    from shearmix.solver.case import CaseError
+    from shearmix.solver.compute.parallel import world
+    from shearmix.solver.files.series import SERIES_FILE
+    from shearmix.solver.grid import GridError, allowed_rank_counts
+    from shearmix.solver.physics.initial import InitialStateError
 
     comm = world()
     rank0 = comm.rank == 0
@@ -113,7 +113,7 @@ def cmd_run(args) -> int:
     series = os.path.join(out_dir, SERIES_FILE)
     checked = None
     if args.restart:
-        from solver.restart import check, resolve
+        from shearmix.solver.run.restart import check, resolve
         found, msg = _on_rank0(comm, lambda: resolve(args.restart, out_dir))
         if msg:
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
@@ -122,7 +122,7 @@ def cmd_run(args) -> int:
             checked = check(path, case, comm)
         except ValueError as exc:
             return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
-        from solver.checkpoint import latest
+        from shearmix.solver.files.checkpoint import latest
         own = os.path.join(os.path.realpath(out_dir), "checkpoints")
         newest = latest(own)
         if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own:
@@ -136,7 +136,7 @@ def cmd_run(args) -> int:
                    "from it in a new --output folder, or restart from the newest")
             return _fail(msg) if rank0 else EXIT_BAD_INPUT
     else:
-        from solver.checkpoint import list_checkpoints
+        from shearmix.solver.files.checkpoint import list_checkpoints
         held = SERIES_FILE if os.path.exists(series) else (
             "checkpoints" if list_checkpoints(os.path.join(out_dir, "checkpoints")) else None)
         if held and not case.get("output.overwrite"):
@@ -150,16 +150,16 @@ def cmd_run(args) -> int:
     if rank0:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
-    from solver.simulation import Simulation
-    from solver.productpass import PhysicalPassError
-    from solver.kernels import KernelBackendError
+    from shearmix.solver.compute.kernels import KernelBackendError
+    from shearmix.solver.compute.productpass import PhysicalPassError
+    from shearmix.solver.run.simulation import Simulation
     try:
         sim = Simulation(case, comm, initial=checked is None)
     except (InitialStateError, GridError, CaseError, PhysicalPassError,
             KernelBackendError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
     if checked is not None:
-        from solver.restart import RestartError, apply, truncate_series
+        from shearmix.solver.run.restart import RestartError, apply, truncate_series
         try:
             apply(sim, path, checked)
         except RestartError as exc:
@@ -179,7 +179,7 @@ def cmd_run(args) -> int:
 
 
 def cmd_info(args) -> int:
-    from tools.fileinfo import describe
+    from shearmix.tools.fileinfo import describe
     try:
         print(describe(args.file, verify=args.verify))
     except ValueError as exc:
@@ -188,7 +188,7 @@ def cmd_info(args) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from solver.version import __version__
+    from shearmix.solver.version import __version__
     parser = argparse.ArgumentParser(
         prog="shearmix",
         description="DNS of forced stratified shear flow (full Boussinesq and low-Peclet "

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import yaml
 
-from solver.checkpoint import verify as verify_checkpoint
-from solver.fileheader import read_header
+from shearmix.solver.files.checkpoint import verify as verify_checkpoint
+from shearmix.solver.files.fileheader import read_header
 
 
 def _case(text: str) -> dict:

@@ -13,13 +13,11 @@ import sys
 
 import numpy as np
 
-sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
-
-from solver.case import case_from_dict  # noqa: E402
-from solver.checkpoint import FOLDER, checkpoint_path  # noqa: E402
-from solver.parallel import world  # noqa: E402
-from solver.restart import apply, check, truncate_series  # noqa: E402
-from solver.simulation import Simulation  # noqa: E402
+from shearmix.solver.case import case_from_dict  # noqa: E402
+from shearmix.solver.compute.parallel import world  # noqa: E402
+from shearmix.solver.files.checkpoint import FOLDER, checkpoint_path  # noqa: E402
+from shearmix.solver.run.restart import apply, check, truncate_series  # noqa: E402
+from shearmix.solver.run.simulation import Simulation  # noqa: E402
 
 STEPS, FIRST = 20, 8
 
@@ -61,7 +59,7 @@ def run(case, directory, restart_from=None):
 
 
 def snapshot(directory):
-    from solver.snapshots import write_snapshot
+    from shearmix.solver.files.snapshots import write_snapshot
     comm = world()
     case = case_from_dict({"model": "lowpe", "parameters": {"Re": 50.0, "BPe": 2.0},
                            "grid": {"Nx": 16, "Ny": 16, "Nz": 8}, "time": {"max_steps": 1},

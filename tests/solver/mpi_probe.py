@@ -8,15 +8,13 @@ import sys
 
 import numpy as np
 
-sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
-
-from solver.case import case_from_dict  # noqa: E402
-from solver.grid import Grid  # noqa: E402
-from solver.parallel import world  # noqa: E402
-from solver.phaseclock import PhaseClock  # noqa: E402
-from solver.simulation import Simulation  # noqa: E402
-from solver import transforms  # noqa: E402
-from solver.transforms import SlabTransform  # noqa: E402
+from shearmix.solver.case import case_from_dict  # noqa: E402
+from shearmix.solver.compute import transforms  # noqa: E402
+from shearmix.solver.compute.parallel import world  # noqa: E402
+from shearmix.solver.compute.phaseclock import PhaseClock  # noqa: E402
+from shearmix.solver.compute.transforms import SlabTransform  # noqa: E402
+from shearmix.solver.grid import Grid  # noqa: E402
+from shearmix.solver.run.simulation import Simulation  # noqa: E402
 
 
 def gather_spectral(comm, local):

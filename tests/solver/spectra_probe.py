@@ -7,12 +7,10 @@ import sys
 
 import numpy as np
 
-sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
-
-from solver.case import case_from_dict  # noqa: E402
-from solver.parallel import world  # noqa: E402
-from solver.simulation import Simulation  # noqa: E402
-from solver.spectra import DIRECTIONS, compute_spectra  # noqa: E402
+from shearmix.solver.case import case_from_dict  # noqa: E402
+from shearmix.solver.compute.parallel import world  # noqa: E402
+from shearmix.solver.files.spectra import DIRECTIONS, compute_spectra  # noqa: E402
+from shearmix.solver.run.simulation import Simulation  # noqa: E402
 
 CASE = {"model": "lowpe", "parameters": {"Re": 40.0, "BPe": 3.0},
         "grid": {"Nx": 16, "Ny": 8, "Nz": 8}, "time": {"t_end": 1.0},

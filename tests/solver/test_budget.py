@@ -10,8 +10,8 @@ is halved, and it stays below 1e-3 of the mean injection at the finer step
 import numpy as np
 import pytest
 
-from solver.series import read_series
-from solver.simulation import Simulation
+from shearmix.solver.files.series import read_series
+from shearmix.solver.run.simulation import Simulation
 
 
 def _max_residual(make_case, tmp_path, model, params, dt):

@@ -3,7 +3,7 @@ import math
 
 import pytest
 
-from solver.case import CaseError, case_from_text, load_case, parse_length
+from shearmix.solver.case import CaseError, case_from_text, load_case, parse_length
 
 GOOD = """
 name: t

@@ -8,14 +8,22 @@ import numpy as np
 import pytest
 import yaml
 
-from solver import checkpoint as ck
-from solver.checkpoint import (CheckpointError, checkpoint_path, latest, list_checkpoints,
-                               prune, read_checkpoint_header, read_fields, verify,
-                               write_checkpoint)
-from solver.fileheader import HeaderError, read_header
-from solver.simulation import EXIT_WRITE_FAILED, Simulation
-from solver.slabfile import WriteFailed, temporary_name
-from solver.version import __version__
+from shearmix.solver.files import checkpoint as ck
+from shearmix.solver.files.checkpoint import (
+    CheckpointError,
+    checkpoint_path,
+    latest,
+    list_checkpoints,
+    prune,
+    read_checkpoint_header,
+    read_fields,
+    verify,
+    write_checkpoint,
+)
+from shearmix.solver.files.fileheader import HeaderError, read_header
+from shearmix.solver.files.slabfile import WriteFailed, temporary_name
+from shearmix.solver.run.simulation import EXIT_WRITE_FAILED, Simulation
+from shearmix.solver.version import __version__
 
 
 @pytest.fixture
@@ -105,7 +113,7 @@ def test_truncated_foreign_missing_and_incomplete_files(sim, tmp_path):
 
 
 def test_a_snapshot_is_not_taken_for_a_checkpoint(sim, tmp_path):
-    from solver.snapshots import write_snapshot
+    from shearmix.solver.files.snapshots import write_snapshot
     snap = write_snapshot(sim, str(tmp_path))
     assert read_header(snap)["kind"] == "snapshot"
     with pytest.raises(HeaderError, match="is a shearmix snapshot, not a checkpoint"):

@@ -7,7 +7,7 @@ import sys
 
 import pytest
 
-from solver.checkpoint import list_checkpoints, verify
+from shearmix.solver.files.checkpoint import list_checkpoints, verify
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -42,8 +42,8 @@ def _stop_after_steps(proc, sig, steps=5, target=None):
 
 def test_sigterm_writes_checkpoint_and_exits_4(tmp_path):
     (tmp_path / "long.yaml").write_text(CASE)
-    env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
-    proc = _start([sys.executable, "-m", "tools.cli", "run", "long.yaml", "-o", "out"],
+    env = dict(os.environ, SHEARMIX_SERIAL="1")
+    proc = _start([sys.executable, "-m", "shearmix.tools.cli", "run", "long.yaml", "-o", "out"],
                   tmp_path, env)
     code, out, err = _stop_after_steps(proc, signal.SIGTERM)
     assert code == 4, out + err
@@ -61,9 +61,9 @@ def test_sigusr1_to_mpiexec_stops_both_ranks_with_a_checkpoint(tmp_path):
     if _mpiexec() is None:
         pytest.skip("no mpiexec on this machine")
     (tmp_path / "long.yaml").write_text(CASE)
-    env = dict(os.environ, PYTHONPATH=ROOT, OMP_NUM_THREADS="1")
+    env = dict(os.environ, OMP_NUM_THREADS="1")
     env.pop("SHEARMIX_SERIAL", None)
-    proc = _start([_mpiexec(), "-n", "2", sys.executable, "-m", "tools.cli", "run", "long.yaml",
+    proc = _start([_mpiexec(), "-n", "2", sys.executable, "-m", "shearmix.tools.cli", "run", "long.yaml",
                    "-o", "out"], tmp_path, env)
     code, out, err = _stop_after_steps(proc, signal.SIGUSR1)
     assert code == 4, out + err

@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 
-from solver.imex import TABLEAUX, ButcherIMEX, LowStorageIMEX
+from shearmix.solver.run.imex import TABLEAUX, ButcherIMEX, LowStorageIMEX
 
 
 @pytest.mark.parametrize("name,tol", [("cb3c", 1e-15), ("ars343", 1e-9)])

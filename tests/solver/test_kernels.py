@@ -1,12 +1,12 @@
 """The compiled kernels agree with their NumPy definitions to round-off.
 
 Both paths run the same nonlinear case for a few steps; the NumPy path is the
-plain definition of the arithmetic (solver/kernels.py)."""
+plain definition of the arithmetic (solver/compute/kernels.py)."""
 import numpy as np
 import pytest
 
-from solver import kernels
-from solver.simulation import Simulation
+from shearmix.solver.compute import kernels
+from shearmix.solver.run.simulation import Simulation
 
 pytestmark = pytest.mark.skipif(not kernels.HAVE_NUMBA, reason="numba not installed")
 

@@ -18,7 +18,7 @@ import math
 import numpy as np
 import pytest
 
-from solver.simulation import Simulation
+from shearmix.solver.run.simulation import Simulation
 
 
 def kolmogorov_eigen(alpha, Re, M=40):

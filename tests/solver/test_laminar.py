@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from solver.simulation import Simulation
+from shearmix.solver.run.simulation import Simulation
 
 
 @pytest.mark.parametrize("model,params,amplitude,kf", [

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 import scipy.linalg
 
-from solver.simulation import Simulation
+from shearmix.solver.run.simulation import Simulation
 
 
 def _mode_amplitudes(sim, n):

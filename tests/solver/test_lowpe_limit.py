@@ -7,7 +7,7 @@ checked; the first-order rate is common practice for such expansions).
 """
 import numpy as np
 
-from solver.simulation import Simulation
+from shearmix.solver.run.simulation import Simulation
 
 
 def test_full_model_converges_to_low_peclet_model(make_case):

@@ -9,7 +9,7 @@ import sys
 import numpy as np
 import pytest
 
-from solver.grid import Grid
+from shearmix.solver.grid import Grid
 
 PROBE = os.path.join(os.path.dirname(__file__), "mpi_probe.py")
 

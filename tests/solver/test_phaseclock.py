@@ -5,8 +5,8 @@ import time
 import numpy as np
 import pytest
 
-from solver.phaseclock import PHASES, PhaseClock
-from solver.simulation import Simulation
+from shearmix.solver.compute.phaseclock import PHASES, PhaseClock
+from shearmix.solver.run.simulation import Simulation
 
 
 def test_lap_charges_the_time_since_the_last_lap():
@@ -60,7 +60,7 @@ def test_clock_covers_the_step_and_changes_nothing(make_case, monkeypatch, kind,
 def test_clock_counts_the_round_trips_work(make_case, monkeypatch, model, params, fields_in,
                                            fields_out):
     """Per evaluation the round trip transforms the velocity (and T) in and the
-    products out (solver/tendency.py: 5 stresses, 3 fluxes of T): (y, z)
+    products out (solver/physics/tendency.py: 5 stresses, 3 fluxes of T): (y, z)
     transforms of every x-plane of each field, x-FFTs of each kept (ky, kz)
     column (2/3 rule, solver/grid.py) of each field, and no more."""
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")

@@ -11,11 +11,16 @@ import h5py
 import numpy as np
 import pytest
 
-from solver.checkpoint import FOLDER, checkpoint_path, read_checkpoint_header, write_checkpoint
-from solver.restart import RestartError, apply, changes, check, truncate_series
-from solver.parallel import SerialComm
-from solver.series import read_series
-from solver.simulation import Simulation
+from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.files.checkpoint import (
+    FOLDER,
+    checkpoint_path,
+    read_checkpoint_header,
+    write_checkpoint,
+)
+from shearmix.solver.files.series import read_series
+from shearmix.solver.run.restart import RestartError, apply, changes, check, truncate_series
+from shearmix.solver.run.simulation import Simulation
 
 sys.path.insert(0, os.path.dirname(__file__))
 import checkpoint_probe as probe  # noqa: E402

@@ -19,7 +19,7 @@ compute: {fftw_effort: estimate, wisdom: ''}
 
 # dies (as if killed) while filling the second checkpoint's second field
 KILL_SECOND_WRITE = """
-import os, solver.checkpoint as ck
+import os, shearmix.solver.files.checkpoint as ck
 _real, _n = ck._columns_crc, [0]
 def _crc(block):
     _n[0] += 1
@@ -33,7 +33,7 @@ ck._columns_crc = _crc
 @pytest.fixture
 def cli(monkeypatch, capsys, tmp_path):
     """``shearmix`` in this process (no start-up cost); returns code, stdout, stderr."""
-    from tools.cli import main
+    from shearmix.tools.cli import main
     monkeypatch.setenv("SHEARMIX_SERIAL", "1")
     monkeypatch.chdir(tmp_path)
 

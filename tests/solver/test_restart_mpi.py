@@ -11,12 +11,12 @@ import sys
 
 import numpy as np
 import pytest
-
 from test_mpi import _mpiexec
 
 sys.path.insert(0, os.path.dirname(__file__))
 import checkpoint_probe as probe  # noqa: E402
-from solver.checkpoint import FOLDER, checkpoint_path  # noqa: E402
+
+from shearmix.solver.files.checkpoint import FOLDER, checkpoint_path  # noqa: E402
 
 PROBE = os.path.join(os.path.dirname(__file__), "checkpoint_probe.py")
 

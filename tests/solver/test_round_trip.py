@@ -3,12 +3,11 @@ against numpy.fft, and the tendency made by blocks against the whole-array pass.
 import numpy as np
 import pytest
 
-from solver import productpass
-from solver import transforms
-from solver.grid import Grid
-from solver.parallel import SerialComm
-from solver.simulation import Simulation
-from solver.transforms import SlabTransform
+from shearmix.solver.compute import productpass, transforms
+from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.compute.transforms import SlabTransform
+from shearmix.solver.grid import Grid
+from shearmix.solver.run.simulation import Simulation
 
 
 def _products(blocks):
@@ -242,8 +241,8 @@ def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
     case files refuse it, the tendency does not rely on that) lands in a row the
     chunked pass does not write: that row of the stepper's register is rezeroed
     every evaluation, so it holds one forcing, not several."""
-    from solver.terms import ShearForcing
-    from solver.tendency import PseudoSpectralTendency
+    from shearmix.solver.physics.tendency import PseudoSpectralTendency
+    from shearmix.solver.physics.terms import ShearForcing
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3}))
     nl = PseudoSpectralTendency(sim.grid, sim.basis, sim.fft, sim.fields, sim.model.advection,
@@ -259,7 +258,7 @@ def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
 
 
 def test_true_runs():
-    from solver.grid import true_runs
+    from shearmix.solver.grid import true_runs
     assert true_runs(np.array([1, 1, 0, 0, 1], dtype=bool)) == [(0, 2), (4, 5)]
     assert true_runs(np.zeros(3, dtype=bool)) == []
     assert true_runs(np.ones(4, dtype=bool)) == [(0, 4)]

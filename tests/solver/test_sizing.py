@@ -1,6 +1,6 @@
 """The memory estimate of `shearmix check` follows the product pass the run will choose."""
-from solver import productpass
-from solver.sizing import bytes_per_point, derived
+from shearmix.solver.compute import productpass
+from shearmix.solver.sizing import bytes_per_point, derived
 
 
 def test_estimate_counts_the_arrays_of_each_pass():

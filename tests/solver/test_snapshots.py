@@ -16,10 +16,10 @@ import h5py
 import numpy as np
 import pytest
 
-from solver.fileheader import read_header
-from solver.simulation import Simulation
-from solver.snapshots import write_snapshot
-from solver.version import __version__
+from shearmix.solver.files.fileheader import read_header
+from shearmix.solver.files.snapshots import write_snapshot
+from shearmix.solver.run.simulation import Simulation
+from shearmix.solver.version import __version__
 
 
 def _analytic(case, x, y, z):
@@ -107,9 +107,9 @@ def test_xdmf_sidecar_follows_the_standard_and_points_at_real_datasets(make_case
 
 
 def test_run_cadence_and_restart_continue_without_repeats(make_case, tmp_path):
-    from solver.checkpoint import FOLDER, list_checkpoints
-    from solver.restart import apply, check
-    from solver.parallel import SerialComm
+    from shearmix.solver.compute.parallel import SerialComm
+    from shearmix.solver.files.checkpoint import FOLDER, list_checkpoints
+    from shearmix.solver.run.restart import apply, check
     case = make_case(grid={"Nx": 16, "Ny": 8, "Nz": 8},
                      time={"t_end": None, "max_steps": 6, "adaptive": False, "dt": 0.1},
                      output={"snapshot_every": 0.2})
@@ -162,8 +162,9 @@ def test_stride_across_two_ranks(tmp_path, make_case):
 
 def test_failing_snapshot_write_stops_the_run_with_code_5(make_case, tmp_path, monkeypatch):
     import errno
-    from solver import snapshots
-    from solver.checkpoint import list_checkpoints
+
+    from shearmix.solver.files import snapshots
+    from shearmix.solver.files.checkpoint import list_checkpoints
 
     def quota(*args, **kwargs):
         raise OSError(errno.EDQUOT, os.strerror(errno.EDQUOT))

@@ -1,4 +1,4 @@
-"""Spectra written during a run (solver/spectra.py).
+"""Spectra written during a run (solver/files/spectra.py).
 
 Checks against things outside the engine's own bookkeeping:
 
@@ -16,9 +16,9 @@ import h5py
 import numpy as np
 import pytest
 
-from solver.simulation import Simulation
-from solver.spectra import SPECTRA_FILE, SpectraOutput, compute_spectra, read_spectra
-from tools.summary import lz_turb
+from shearmix.solver.files.spectra import SPECTRA_FILE, SpectraOutput, compute_spectra, read_spectra
+from shearmix.solver.run.simulation import Simulation
+from shearmix.tools.analysis.summary import lz_turb
 
 
 def _physical_mean_squares(sim):
@@ -115,7 +115,7 @@ def test_lz_turb_single_vertical_wavenumber(make_case):
 
 @pytest.mark.mpi
 def test_spectra_do_not_depend_on_rank_count(tmp_path):
-    """The same seeded state (rank-independent noise, solver/initial.py) on 1 and 2 ranks."""
+    """The same seeded state (rank-independent noise, solver/physics/initial.py) on 1 and 2 ranks."""
     import os
     import shutil
     import subprocess

@@ -11,9 +11,9 @@ import math
 import numpy as np
 import pytest
 
-from solver.models import Model
-from solver.simulation import Simulation
-from solver.terms import Advection, Viscosity
+from shearmix.solver.physics.models import Model
+from shearmix.solver.physics.terms import Advection, Viscosity
+from shearmix.solver.run.simulation import Simulation
 
 
 def _tg_sim(make_case, Re, dt, scheme="cb3c", three_d=False):

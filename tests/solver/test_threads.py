@@ -3,8 +3,8 @@ import os
 
 import pytest
 
-from solver.parallel import SerialComm
-from solver.simulation import default_threads
+from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.run.simulation import default_threads
 
 
 class _Node(SerialComm):

@@ -2,9 +2,9 @@
 import numpy as np
 import pytest
 
-from solver.grid import Grid
-from solver.parallel import SerialComm
-from solver.transforms import SlabTransform
+from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.compute.transforms import SlabTransform
+from shearmix.solver.grid import Grid
 
 
 @pytest.mark.parametrize("shape", [(12, 8, 10), (16, 18, 8)])

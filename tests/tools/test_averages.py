@@ -1,4 +1,4 @@
-"""Tests of tools.averages on synthetic series with known statistics.
+"""Tests of shearmix.tools.analysis.averages on synthetic series with known statistics.
 
 Coverage tolerances: over M independent seeded series the number of 1-sigma
 intervals that cover the true mean is binomial(M, p) with p = 0.6827 (normal
@@ -11,7 +11,7 @@ import pytest
 from scipy import stats
 from scipy.signal import lfilter
 
-from tools.averages import (
+from shearmix.tools.analysis.averages import (
     batch_means,
     integrated_autocorrelation_time,
     time_average,

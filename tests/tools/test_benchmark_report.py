@@ -1,7 +1,12 @@
 """The benchmark's README tables are computed from its JSON records."""
+import os
+import sys
+
 import pytest
 
-from tools.benchmark import markdown
+# the benchmark is a script beside scripts/bench, not part of the installed package
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "scripts", "benchmarks"))
+from steps import markdown  # noqa: E402
 
 
 def _record(model, n, ranks, step, floor):
@@ -25,8 +30,9 @@ def test_worker_counts_the_fewest_transforms_per_stage(monkeypatch, physical_pas
     """Per explicit stage: 3 inverse (velocity) + 5 forward (the stresses uu-ww, vv-ww,
     uv, uw, vw; the trace is a gradient) for low-Pé; +1 inverse (T) and +3 forward
     (uT, vT, wT) for the full model. Common practice for divergence-form advection."""
-    from solver.imex import TABLEAUX
-    from tools.benchmark import worker
+    from steps import worker
+
+    from shearmix.solver.run.imex import TABLEAUX
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", physical_pass)
     stages = TABLEAUX["cb3c"].stages
     for model, per_stage in (("lowpe", 8), ("boussinesq", 12)):
@@ -38,7 +44,7 @@ def test_worker_counts_the_fewest_transforms_per_stage(monkeypatch, physical_pas
 
 
 def test_passes_worker_times_both_product_passes_in_one_process(monkeypatch):
-    from tools.benchmark import passes_worker
+    from steps import passes_worker
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
     rec = passes_worker("lowpe", 16, 2)
     assert rec["whole_seconds"] > 0 and rec["blocks_seconds"] > 0
@@ -51,7 +57,7 @@ def test_passes_worker_times_both_product_passes_in_one_process(monkeypatch):
 
 
 def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
-    from tools.benchmark import phases_table, phases_worker
+    from steps import phases_table, phases_worker
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     rec = phases_worker("lowpe", 16, 3)
     assert rec["physical_pass"] == "blocks" and rec["ranks"] == 1
@@ -85,7 +91,7 @@ def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
 
 @pytest.mark.mpi
 def test_phases_on_two_ranks_include_the_waits(monkeypatch):
-    from tools.benchmark import launch
+    from steps import launch
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     rec = launch("boussinesq", 16, 2, 2, worker="--phases-worker")
     assert rec["ranks"] == 2 and len(rec["ms_per_step"]) == 2
@@ -100,7 +106,7 @@ def test_phases_on_two_ranks_include_the_waits(monkeypatch):
 
 @pytest.mark.mpi
 def test_schedule_worker_compares_claimed_and_own_planes(monkeypatch):
-    from tools.benchmark import launch
+    from steps import launch
     # the worker makes block-wise simulations whatever the size or the caller asks
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
     rec = launch("lowpe", 16, 2, 2, worker="--schedule-worker")

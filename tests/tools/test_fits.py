@@ -1,9 +1,14 @@
-"""Tests of tools.fits (log-log weighted least squares, t intervals)."""
+"""Tests of shearmix.tools.analysis.fits (log-log weighted least squares, t intervals)."""
 import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from tools.fits import EXPECTED_EXPONENTS, compare_exponent, fit_power_law, fit_table
+from shearmix.tools.analysis.fits import (
+    EXPECTED_EXPONENTS,
+    compare_exponent,
+    fit_power_law,
+    fit_table,
+)
 
 
 def test_exact_power_law_recovered_to_rounding():

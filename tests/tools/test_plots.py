@@ -5,7 +5,7 @@ PNG check: the 8-byte signature and the IHDR chunk (width, height) of the
 PNG specification (ISO/IEC 15948, section 5.2 and 11.2.2).
 Slices: a checkpoint holding single Craya-Herring modes must give back
 ``u`` and ``w`` from the frame's definition (Herring 1974, Phys. Fluids 17,
-859; restated in solver/basis.py): vortical ``e1 = (ky, -kx, 0)/kh``,
+859; restated in solver/physics/basis.py): vortical ``e1 = (ky, -kx, 0)/kh``,
 poloidal ``e2 = (kx kz, ky kz, -kh^2)/(kh |k|)``.
 """
 import math
@@ -20,9 +20,9 @@ import pytest
 
 pytest.importorskip("matplotlib")
 
-from solver.simulation import Simulation  # noqa: E402
-from tools import plots  # noqa: E402
-from tools.fields import FieldsNotFound, run_fields  # noqa: E402
+from shearmix.solver.run.simulation import Simulation  # noqa: E402
+from shearmix.tools.plots import figures as plots  # noqa: E402
+from shearmix.tools.plots.fields import FieldsNotFound, run_fields  # noqa: E402
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -38,7 +38,7 @@ def assert_png(path, min_size=(200, 150)):
 
 @pytest.fixture(scope="module")
 def tiny_run(tmp_path_factory):
-    from solver.case import case_from_dict
+    from shearmix.solver.case import case_from_dict
     out = tmp_path_factory.mktemp("run")
     case = case_from_dict({
         "model": "lowpe", "parameters": {"Re": 40.0, "BPe": 2.0},
@@ -56,7 +56,7 @@ def test_series_and_spectra_png(tiny_run, tmp_path):
 
 
 def _write_checkpoint(path, shape, lengths, modes):
-    """A file in the checkpoint layout of solver/checkpoint.py holding given amplitudes."""
+    """A file in the checkpoint layout of solver/files/checkpoint.py holding given amplitudes."""
     nx, ny, nz = shape
     state = {f: np.zeros((nx, ny, nz // 2 + 1), complex) for f in ("a", "p")}
     for field, (ix, iy, iz), value in modes:
@@ -91,7 +91,7 @@ def test_no_fields_is_one_clear_error(tmp_path):
 
 
 def test_sweep_figures_png(tmp_path):
-    from tools.sweep_summary import fit_rows
+    from shearmix.tools.sweeps.summary import fit_rows
     rows = []
     for i, (bpe, re_) in enumerate([(0.1, 20), (1, 20), (10, 20), (100, 20), (1, 40)]):
         rows.append({"BPe": bpe, "Re": re_, "eta": 0.1 * (i + 1),
@@ -105,8 +105,8 @@ def test_sweep_figures_png(tmp_path):
 
 
 def test_plot_command(tiny_run, tmp_path):
-    env = dict(os.environ, PYTHONPATH=ROOT, SHEARMIX_SERIAL="1")
-    code = "import sys; from tools.cli import main; sys.exit(main(sys.argv[1:]))"
+    env = dict(os.environ, SHEARMIX_SERIAL="1")
+    code = "import sys; from shearmix.tools.cli import main; sys.exit(main(sys.argv[1:]))"
     r = subprocess.run([sys.executable, "-c", code, "plot", str(tiny_run), "-o", str(tmp_path)],
                        capture_output=True, text=True, env=env, timeout=120)
     assert r.returncode == 0, r.stderr
@@ -120,7 +120,7 @@ def test_plot_command(tiny_run, tmp_path):
 
 
 def test_slices_from_engine_snapshot_match_closed_form(make_case, tmp_path):
-    snapshots = pytest.importorskip("solver.snapshots")
+    snapshots = pytest.importorskip("shearmix.solver.files.snapshots")
     case = make_case(grid={"Nx": 8, "Ny": 8, "Nz": 8}, box={"Lx": "2*pi"}, initial={"kind": "rest"})
     sim = Simulation(case)
     sim.add_mode(1, 2, 1, "poloidal", 0.5)  # kh = sqrt(5), |k| = sqrt(6)

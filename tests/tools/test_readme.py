@@ -3,7 +3,7 @@ import io
 import os
 from contextlib import redirect_stdout
 
-from tools.cli import main
+from shearmix.tools.cli import main
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 

@@ -1,10 +1,10 @@
-"""Tests of tools.regimes: labels of hand-made summaries follow the documented
+"""Tests of shearmix.tools.analysis.regimes: labels of hand-made summaries follow the documented
 thresholds (a choice of this tool, not a published criterion)."""
 import math
 
 import pytest
 
-from tools.regimes import RegimeThresholds, classify, regime_numbers
+from shearmix.tools.analysis.regimes import RegimeThresholds, classify, regime_numbers
 
 # Hand-made summary: u_h = sqrt((0.6^2 + 0.8^2)/2) = sqrt(0.5); Re u_h = 200 sqrt(0.5).
 BASE = {"u_rms": 0.6, "v_rms": 0.8, "w_rms": 0.2, "eta": 0.4, "eps_cv": 0.2, "Lz_turb": 1.0, "Re": 200.0}

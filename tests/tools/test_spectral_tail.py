@@ -4,9 +4,9 @@ import math
 import numpy as np
 import pytest
 
-from solver.grid import Grid
-from solver.spectra import DIRECTIONS, SpectralBins, SpectraWriter
-from tools.spectral_tail import tail_ratio, tail_warning
+from shearmix.solver.files.spectra import DIRECTIONS, SpectralBins, SpectraWriter
+from shearmix.solver.grid import Grid
+from shearmix.tools.analysis.spectral_tail import tail_ratio, tail_warning
 
 
 def test_tail_ratio_of_a_known_spectrum(make_case, tmp_path):

@@ -4,8 +4,8 @@ import math
 
 import pytest
 
-from tools.stability import cli
-from tools.stability.tables import read_csv
+from shearmix.tools.stability import cli
+from shearmix.tools.stability.tables import read_csv
 
 CASE = """name: invented-layer
 model: lowpe

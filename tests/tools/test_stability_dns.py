@@ -1,6 +1,6 @@
 """The engine started from an eigenmode grows at the computed rate.
 
-Reference: the DNS engine (``solver.simulation``), an independent
+Reference: the DNS engine (``shearmix.solver.run.simulation``), an independent
 implementation of the nonlinear equations of DESIGN.md section 2.  At small
 amplitude the perturbation must grow at the linear growth rate; the issue asks
 for agreement within 2% over a decade of growth.  Serial, small grids.
@@ -11,12 +11,11 @@ import numpy as np
 import pytest
 
 pytest.importorskip("h5py")
-simulation = pytest.importorskip("solver.simulation")
-from solver.case import case_from_dict  # noqa: E402
-
-from tools.stability import params_from_case  # noqa: E402
-from tools.stability.boxfit import Box  # noqa: E402
-from tools.stability.modefile import mode_fields, write_mode_file  # noqa: E402
+simulation = pytest.importorskip("shearmix.solver.run.simulation")
+from shearmix.solver.case import case_from_dict  # noqa: E402
+from shearmix.tools.stability import params_from_case  # noqa: E402
+from shearmix.tools.stability.boxfit import Box  # noqa: E402
+from shearmix.tools.stability.modefile import mode_fields, write_mode_file  # noqa: E402
 
 
 def _case(model, params, path, Ly="2*pi", Ny=32):

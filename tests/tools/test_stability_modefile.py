@@ -6,10 +6,9 @@ import pytest
 
 h5py = pytest.importorskip("h5py")
 
-from tools.stability import FlowParams
-from tools.stability.boxfit import Box
-from tools.stability.modefile import mode_fields, write_mode_file
-
+from shearmix.tools.stability import FlowParams
+from shearmix.tools.stability.boxfit import Box
+from shearmix.tools.stability.modefile import mode_fields, write_mode_file
 
 BOX = Box(4 * math.pi, 2 * math.pi, 2 * math.pi, 16, 32, 12)
 

@@ -3,8 +3,7 @@ import numpy as np
 import pytest
 import scipy.linalg
 
-from tools.stability import FlowParams, build, solve
-from tools.stability import eigen
+from shearmix.tools.stability import FlowParams, build, eigen, solve
 
 
 @pytest.mark.parametrize("p", [FlowParams("boussinesq", Re=300.0, B=1.0, Pe=30.0),
@@ -85,7 +84,7 @@ def test_special_wavenumbers_give_finite_spectra(kx, kz):
 def test_map_sparse_path_matches_scipy_dense():
     """A growth map on the sparse path (large truncation) against LAPACK dense eigvals
     (scipy.linalg, reference library) at the same truncation, point by point."""
-    from tools.stability import growth_map
+    from shearmix.tools.stability import growth_map
     p = FlowParams("boussinesq", Re=1000.0, B=1.0, Pe=100.0)
     kx = np.array([0.3, 0.6, 0.95])
     kz = np.array([0.0, 0.9, 1.8])

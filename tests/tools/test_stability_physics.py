@@ -7,8 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from tools.stability import FlowParams, build, solve, spectrum
-from tools.stability.maps import neutral_value
+from shearmix.tools.stability import FlowParams, build, solve, spectrum
+from shearmix.tools.stability.maps import neutral_value
 
 
 # ---------------------------------------------------------------- Kolmogorov flow, 2D

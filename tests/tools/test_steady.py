@@ -1,10 +1,10 @@
-"""Tests of tools.steady (MSER truncation rule, White 1997)."""
+"""Tests of shearmix.tools.analysis.steady (MSER truncation rule, White 1997)."""
 import numpy as np
 import pytest
 from scipy.signal import lfilter
 
-from tools.averages import time_average
-from tools.steady import detect_steady_state, mser
+from shearmix.tools.analysis.averages import time_average
+from shearmix.tools.analysis.steady import detect_steady_state, mser
 
 
 def test_mser_statistic_hand_computed():

@@ -1,4 +1,4 @@
-"""Tests of tools.summary on invented time series and fields (test data only)."""
+"""Tests of shearmix.tools.analysis.summary on invented time series and fields (test data only)."""
 import csv
 import json
 import math
@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 import yaml
 
-from tools.fits import fit_table
-from tools.summary import (
+from shearmix.tools.analysis.fits import fit_table
+from shearmix.tools.analysis.summary import (
     AVERAGED,
     horizontal_spectrum_kz,
     lz_turb,
@@ -225,7 +225,7 @@ def test_lz_turb_errors():
 
 # ------------------------------------------------------------- command line
 def test_command_line(tmp_path, run_dir, capsys):
-    from tools.analysis_cli import main
+    from shearmix.tools.analysis.cli import main
 
     out_csv, out_json = tmp_path / "t.csv", tmp_path / "r.json"
     assert main(["summary", str(run_dir), "--csv", str(out_csv), "--json", str(out_json)]) == 0

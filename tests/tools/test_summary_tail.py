@@ -1,13 +1,13 @@
 """`shearmix summary` warns when a run's kinetic spectrum is still high at kmax.
 
 The threshold (1e-3 of the spectral peak) is this tool's choice
-(tools/spectral_tail.py); the check here is that a run far too coarse for its
+(tools/analysis/spectral_tail.py); the check here is that a run far too coarse for its
 Reynolds number trips it and a viscous one does not.
 """
 import pytest
 
-from solver.simulation import Simulation
-from tools.summary import summarize_run
+from shearmix.solver.run.simulation import Simulation
+from shearmix.tools.analysis.summary import summarize_run
 
 
 @pytest.mark.parametrize("Re,forcing,noise,expect_warning", [

@@ -14,7 +14,13 @@ import numpy as np
 import pytest
 import yaml
 
-from tools.sweeps import SweepError, expand, load_sweep, parameter_values, read_manifest
+from shearmix.tools.sweeps.spec import (
+    SweepError,
+    expand,
+    load_sweep,
+    parameter_values,
+    read_manifest,
+)
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -36,9 +42,9 @@ def _write(tmp_path, sweep, name="sweep.yaml"):
 
 
 def _cli(*args, cwd):
-    code = "import sys; from tools.cli import main; sys.exit(main(sys.argv[1:]))"
-    # one rank per member: skip MPI start-up (solver/parallel.py)
-    env = dict(os.environ, PYTHONPATH=ROOT, OMP_NUM_THREADS="1", SHEARMIX_SERIAL="1")
+    code = "import sys; from shearmix.tools.cli import main; sys.exit(main(sys.argv[1:]))"
+    # one rank per member: skip MPI start-up (solver/compute/parallel.py)
+    env = dict(os.environ, OMP_NUM_THREADS="1", SHEARMIX_SERIAL="1")
     return subprocess.run([sys.executable, "-c", code, *args], cwd=cwd, env=env,
                           capture_output=True, text=True, timeout=300)
 
@@ -136,7 +142,7 @@ def _states(table):
 
 
 def test_tiny_sweep_runs_stops_resumes_and_summarizes(tmp_path):
-    pytest.importorskip("solver.restart", reason="needs the engine's checkpoints and --restart")
+    pytest.importorskip("shearmix.solver.run.restart", reason="needs the engine's checkpoints and --restart")
     s = {"sweep": "tiny", "base_case": TINY_BASE, "vary": {"parameters.BPe": [0.5, 5]},
          "launch": {"ranks": 1, "parallel": 2}}
     path = _write(tmp_path, s)
@@ -192,7 +198,8 @@ def test_failed_member_reports_its_reason(tmp_path):
 # ------------------------------------------------------------------ fits across a sweep
 def test_fit_rows_recovers_exact_power_law_and_selects(tmp_path):
     import csv
-    from tools.sweep_summary import fit_rows, write_fits
+
+    from shearmix.tools.sweeps.summary import fit_rows, write_fits
     rng = np.random.default_rng(4)
     bpe = np.geomspace(0.1, 100, 7)
     rows = []
@@ -223,7 +230,7 @@ def test_fit_rows_recovers_exact_power_law_and_selects(tmp_path):
 def test_batch_script_resubmits_on_exit_4_only(tmp_path, system, submit):
     """Render a job script with a stand-in run command and a fake submitter on PATH,
     then execute it with bash: exit 4 -> one resubmission, counted and capped."""
-    from tools.batch import write_batch_scripts
+    from shearmix.tools.sweeps.batch import write_batch_scripts
     sw = load_sweep(_write(tmp_path, {"sweep": "jobs", "base_case": TINY_BASE,
                                       "vary": {"parameters.BPe": [1, 2]}}))
     flag = tmp_path / "code"
@@ -261,7 +268,7 @@ def test_batch_rejects_bad_walltime(tmp_path):
 
 
 def test_chained_member_starts_from_its_neighbour(tmp_path):
-    pytest.importorskip("solver.restart", reason="needs the engine's checkpoints and --restart")
+    pytest.importorskip("shearmix.solver.run.restart", reason="needs the engine's checkpoints and --restart")
     s = {"sweep": "chain", "base_case": {**TINY_BASE, "time": {"t_end": 0.4, "dt": 0.02,
                                                                "adaptive": False}},
          "vary": {"parameters.BPe": [5, 1]}, "chain": "parameters.BPe"}

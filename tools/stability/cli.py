@@ -193,7 +193,7 @@ def _setup(args):
         if given:
             raise BadInput(f"--{given[0]}: with a case file change parameters with --set "
                            f"(e.g. --set parameters.Re=200), not --{given[0]}")
-        from solver.case import CaseError, load_case
+        from shearmix.solver.case import CaseError, load_case
         try:
             case = load_case(args.case, args.set or None)
         except CaseError as exc:
@@ -520,7 +520,7 @@ def run_mode(args):
 
 
 def main(argv=None) -> int:
-    """Stand-alone entry (``python -m tools.stability.cli ...``), same as ``shearmix stability``."""
+    """Stand-alone entry (``python -m shearmix.tools.stability.cli ...``), same as ``shearmix stability``."""
     parser = argparse.ArgumentParser(prog="shearmix")
     sub = parser.add_subparsers(dest="command")
     add_arguments(sub)

@@ -26,7 +26,6 @@ from . import eigen
 from .operators import build
 from .params import FlowParams
 
-
 MAP_GUESSES = 4   # shifts per grid point for the sparse solver
 
 

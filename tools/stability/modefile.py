@@ -1,6 +1,6 @@
 """An eigenmode as a perturbation file for the engine (``initial: {kind: eigenmode}``, or ``kind: file``).
 
-File layout (read by ``solver.initial.read_perturbation``): HDF5 with float64
+File layout (read by ``shearmix.solver.physics.initial.read_perturbation``): HDF5 with float64
 datasets ``u``, ``v``, ``w`` (and ``T`` for the boussinesq model) of shape
 ``(Nx, Ny, Nz)`` on the case grid, ``x_i = i Lx / Nx`` along axis 0 (likewise
 ``y``, ``z``), root attributes ``kind = "perturbation"``, ``version``,
@@ -34,7 +34,7 @@ FORMAT_VERSION = 1
 
 def program_version() -> str:
     try:
-        from solver.version import __version__
+        from shearmix.solver.version import __version__
         return str(__version__)
     except Exception:  # the engine package may be absent in a bare tools install
         return "unknown"

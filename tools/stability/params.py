@@ -138,7 +138,7 @@ class FlowParams:
 
 
 def params_from_case(case) -> FlowParams:
-    """Flow parameters of a loaded case (``solver.case.load_case``).
+    """Flow parameters of a loaded case (``shearmix.solver.case.load_case``).
 
     The case's forcing amplitude keyword decides ``hold``: ``laminar`` keeps
     ``U_L``; ``unit`` or a number keeps ``F0``.

@@ -1,0 +1,87 @@
+"""The terms of the equations, each one idea; a model is a set of them.
+
+State amplitudes per wavenumber (see :mod:`shearmix.solver.physics.basis`): ``a`` (vortical),
+``p`` (poloidal, carries ``w = -alpha p``) and, in the full model, ``T``.
+Linear terms are treated implicitly; each adds its coefficients to the
+per-wavenumber linear operator ``L`` (``d(field)/dt = L[field, source] * source``).
+Explicit terms (advection, forcing) add to the explicit tendency.
+
+Linear coefficients follow DESIGN.md section 2 in the Craya-Herring frame,
+with ``alpha = kh/|k|``. Each is a short sum of monomials ``c |k|^(2m) alpha^n``,
+given by the term as rows ``(c, m, n)``: the compiled stepper evaluates them per
+wavenumber and stores no coefficient array.
+
+* viscosity:            ``L[a,a] = L[p,p] = -|k|^2/Re``
+* thermal diffusion:    ``L[T,T] = -|k|^2/Pe``
+* buoyancy B T e_z:     ``L[p,T] = -B alpha``          (``e2 . e_z = -alpha``)
+* background gradient (``-w`` in the T equation): ``L[T,p] = +alpha``
+* quasi-static buoyancy ``BPe lap^{-1}(w) e_z``: ``L[p,p] = -BPe alpha^2/|k|^2``
+  (``= -BPe kh^2/|k|^4``, the low-Peclet damping)
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Viscosity:
+    """Momentum diffusion ``(1/Re) lap u``."""
+
+    Re: float
+
+    def linear(self):
+        d = [(-1.0 / self.Re, 1, 0)]
+        return {("a", "a"): d, ("p", "p"): d}
+
+
+@dataclass(frozen=True)
+class ThermalDiffusion:
+    """Temperature diffusion ``(1/Pe) lap T``."""
+
+    Pe: float
+
+    def linear(self):
+        return {("T", "T"): [(-1.0 / self.Pe, 1, 0)]}
+
+
+@dataclass(frozen=True)
+class Buoyancy:
+    """Buoyancy force ``B T e_z`` in the momentum equation (projected)."""
+
+    B: float
+
+    def linear(self):
+        return {("p", "T"): [(-self.B, 0, 1)]}
+
+
+@dataclass(frozen=True)
+class BackgroundStratification:
+    """Advection of the unit background gradient: ``-w`` in the temperature equation."""
+
+    def linear(self):
+        return {("T", "p"): [(1.0, 0, 1)]}
+
+
+@dataclass(frozen=True)
+class QuasiStaticBuoyancy:
+    """Low-Peclet buoyancy ``BPe lap^{-1}(w) e_z`` (zero on k = 0), projected."""
+
+    BPe: float
+
+    def linear(self):
+        return {("p", "p"): [(-self.BPe, -1, 2)]}
+
+
+@dataclass(frozen=True)
+class Advection:
+    """``-(u.grad)u`` and, when the model has T, ``-u.grad T`` (pseudo-spectral)."""
+
+    with_temperature: bool
+
+
+@dataclass(frozen=True)
+class ShearForcing:
+    """``F = F0 sin(kf y) e_x``; on the modes ``(0, +-kf, 0)`` it is ``F0/(2i) e_x``."""
+
+    F0: float
+    kf: float

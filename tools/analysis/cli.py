@@ -1,0 +1,139 @@
+"""Command-line subcommands of the analysis tools: ``summary`` and ``fit``.
+
+    shearmix summary RUN_DIR... [--start T] [--csv FILE] [--json FILE]
+                     [--thresholds FILE.yaml] [--kmax-etak-min X]
+                     [--min-correlation-times N] [--pe-turb-max X]
+    shearmix fit TABLE.csv --x BPe --y Lz_turb [--range LO HI]
+                 [--confidence C] [--no-errors]
+
+Registered by :func:`add_arguments` on the program's subparsers; each
+subcommand's handler is stored as ``func`` and returns an exit code
+(0 done, 2 bad input). :func:`dispatch` runs the handler of parsed arguments.
+"""
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+
+EXIT_BAD_INPUT = 2
+
+__all__ = ["add_arguments", "dispatch", "main", "cmd_summary", "cmd_fit"]
+
+_SHOWN = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flux", "D_estimate",
+          "kmax_etaK", "Pe_turb")
+
+
+def _fail(message):
+    print(f"shearmix: error: {message}", file=sys.stderr)
+    return EXIT_BAD_INPUT
+
+
+def _fmt(mean, err):
+    if not math.isfinite(mean):
+        return "-"
+    return f"{mean:.5g} +- {err:.2g}"
+
+
+def _print_row(row, out):
+    print(f"run {row['run']}  ({row['model']}, Re={row['Re']:g}, BPe={row['BPe']:g})", file=out)
+    print(f"  window [{row['t_start']:.6g}, {row['t_end']:.6g}] ({row['steady_method']}), "
+          f"{row['correlation_times']:.3g} autocorrelation times", file=out)
+    for q in _SHOWN:
+        if math.isfinite(row[q]):
+            print(f"  {q:<11s} {_fmt(row[q], row[q + '_err'])}", file=out)
+    print(f"  eps_cv      {row['eps_cv']:.3g}   (flatness {row['eps_flatness']:.3g})", file=out)
+    print(f"  regime      {row['regime']}: {row['regime_reason']}", file=out)
+    for w in row["warnings"]:
+        print(f"  warning: {w}", file=out)
+
+
+def cmd_summary(args):
+    """Handler of ``summary``: print, and optionally write CSV/JSON."""
+    from shearmix.tools.analysis.regimes import RegimeThresholds
+    from shearmix.tools.analysis.summary import SummaryOptions, summarize_run, write_csv, write_json
+
+    try:
+        th = RegimeThresholds.from_yaml(args.thresholds) if args.thresholds else RegimeThresholds()
+        opts = SummaryOptions(start=args.start, kmax_etaK_min=args.kmax_etak_min,
+                              min_correlation_times=args.min_correlation_times,
+                              pe_turb_max=args.pe_turb_max, thresholds=th)
+        rows = [summarize_run(d, opts) for d in args.run_dirs]
+    except (ValueError, OSError) as exc:
+        return _fail(str(exc))
+    for row in rows:
+        _print_row(row, sys.stdout)
+    try:
+        if args.csv:
+            write_csv(rows, args.csv)
+        if args.json:
+            write_json(rows[0] if len(rows) == 1 else rows, args.json)
+    except OSError as exc:
+        return _fail(f"cannot write output: {exc}")
+    return 0
+
+
+def cmd_fit(args):
+    """Handler of ``fit``: power law of two table columns with its interval."""
+    from shearmix.tools.analysis.fits import fit_table
+
+    try:
+        fit, comp = fit_table(args.table, args.x, args.y, x_range=args.range,
+                              confidence=args.confidence, use_errors=not args.no_errors)
+    except (ValueError, OSError) as exc:
+        return _fail(str(exc))
+    pct = 100 * fit.confidence
+    print(f"{args.y} = A * {args.x}^p over {args.x} in [{fit.x_range[0]:g}, {fit.x_range[1]:g}] "
+          f"({fit.n} runs)")
+    print(f"  p = {fit.p:.4g} +- {fit.p_stderr:.2g}   {pct:g}% interval [{fit.p_ci[0]:.4g}, {fit.p_ci[1]:.4g}]")
+    print(f"  A = {fit.A:.4g}   {pct:g}% interval [{fit.A_ci[0]:.4g}, {fit.A_ci[1]:.4g}]")
+    print(f"  reduced chi-square {fit.chi2_red:.3g} ({fit.dof} degrees of freedom)")
+    if comp is not None:
+        verdict = "consistent" if comp["consistent"] else "not consistent"
+        print(f"  expected p = {comp['expected']:.4g} (DESIGN.md, fact of the trade): {verdict} "
+              f"at {pct:g}% (difference {comp['difference']:+.3g}, {comp['z']:+.2f} standard errors)")
+    return 0
+
+
+def add_arguments(subparsers):
+    """Register ``summary`` and ``fit`` on an argparse subparsers object."""
+    p = subparsers.add_parser("summary", help="time averages, errors, regime and warnings of runs")
+    p.add_argument("run_dirs", nargs="+", metavar="RUN_DIR", help="run folder (or its timeseries.h5)")
+    p.add_argument("--start", type=float, metavar="T", help="steady-state start time (skips detection)")
+    p.add_argument("--csv", metavar="FILE", help="write all rows to one CSV table")
+    p.add_argument("--json", metavar="FILE", help="write the row(s) as JSON")
+    p.add_argument("--thresholds", metavar="FILE", help="regime thresholds (YAML mapping)")
+    p.add_argument("--kmax-etak-min", type=float, default=1.0, metavar="X",
+                   help="under-resolution warning below this kmax*eta_K (default 1.0)")
+    p.add_argument("--min-correlation-times", type=float, default=50.0, metavar="N",
+                   help="too-short warning below this many autocorrelation times (default 50)")
+    p.add_argument("--pe-turb-max", type=float, default=1.0, metavar="X",
+                   help="low-Peclet validity warning above this Pe_turb (default 1)")
+    p.set_defaults(func=cmd_summary)
+
+    p = subparsers.add_parser("fit", help="power-law fit of two columns of a summary table")
+    p.add_argument("table", metavar="TABLE.csv")
+    p.add_argument("--x", required=True, help="column of the abscissa, e.g. BPe")
+    p.add_argument("--y", required=True, help="column of the ordinate, e.g. Lz_turb")
+    p.add_argument("--range", nargs=2, type=float, metavar=("LO", "HI"), help="fit only LO <= x <= HI")
+    p.add_argument("--confidence", type=float, default=0.95, help="interval level (default 0.95)")
+    p.add_argument("--no-errors", action="store_true", help="ignore the <y>_err column (unweighted fit)")
+    p.set_defaults(func=cmd_fit)
+
+
+def dispatch(args):
+    """Run the handler chosen by the parsed arguments; return its exit code."""
+    return int(args.func(args) or 0)
+
+
+def main(argv=None):
+    """Stand-alone entry (the program's own dispatcher normally does this)."""
+    parser = argparse.ArgumentParser(prog="shearmix-analysis")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    add_arguments(sub)
+    return dispatch(parser.parse_args(argv))
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""Figures of single runs and sweeps (PNG, matplotlib Agg), and the fields they show."""
