@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import math
+import os
 
 from shearmix.solver.case import Case
 from shearmix.solver.compute.productpass import physical_pass, product_fields
@@ -75,3 +76,53 @@ def derived(case: Case, ranks: int | None = None) -> dict:
     out["expected memory"] = per_point * nx * ny * nz + LIBRARY_BYTES * (ranks or 1)
     out["bytes per point"] = per_point
     return out
+
+
+def node_memory(meminfo: str = "/proc/meminfo") -> dict | None:
+    """``{'available': bytes, 'total': bytes}`` of this node, or None if unknown.
+
+    From ``MemAvailable`` and ``MemTotal`` of ``/proc/meminfo`` (Linux), else
+    from ``os.sysconf`` (available then counts free pages only).
+    """
+    found = {}
+    try:
+        with open(meminfo, encoding="ascii") as fh:
+            for line in fh:
+                key, _, rest = line.partition(":")
+                if key in ("MemAvailable", "MemTotal"):
+                    found[key] = int(rest.split()[0]) * 1024  # the file's unit is kB
+    except (OSError, ValueError, IndexError):
+        found = {}
+    if "MemTotal" in found:
+        return {"available": found.get("MemAvailable", found["MemTotal"]),
+                "total": found["MemTotal"]}
+    try:
+        page = os.sysconf("SC_PAGE_SIZE")
+        return {"available": os.sysconf("SC_AVPHYS_PAGES") * page,
+                "total": os.sysconf("SC_PHYS_PAGES") * page}
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def memory_per_node(case: Case, ranks: int, ranks_on_node: int) -> float:
+    """Expected bytes on one node holding ``ranks_on_node`` of the run's ``ranks`` ranks
+    (each rank holds an equal slab)."""
+    total = derived(case, ranks)["expected memory"] - LIBRARY_BYTES * ranks
+    return total * ranks_on_node / ranks + LIBRARY_BYTES * ranks_on_node
+
+
+def memory_shortfall(case: Case, ranks: int, ranks_on_node: int,
+                     node: dict | None = None) -> str | None:
+    """A one-line message when the expected memory per node exceeds what the node has
+    available now, else None (also when the node's memory is unknown)."""
+    node = node if node is not None else node_memory()
+    if node is None:
+        return None
+    need = memory_per_node(case, ranks, ranks_on_node)
+    if need <= node["available"]:
+        return None
+    mib = 2 ** 20
+    return (f"grid {' x '.join(map(str, case.shape))}: expected memory "
+            f"{need / mib:.0f} MiB per node ({ranks_on_node} of {ranks} rank(s) on it) exceeds "
+            f"the {node['available'] / mib:.0f} MiB available on this node "
+            f"({node['total'] / mib:.0f} MiB total)")

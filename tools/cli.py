@@ -1,9 +1,9 @@
 """``shearmix``: the one command-line door to the engine and the tools.
 
     shearmix run CASE.yaml [--output DIR] [--set key=value ...] [--restart PATH|latest]
-                           [--wall-hours H]
+                           [--wall-hours H] [--no-memory-check]
     shearmix info FILE [--verify]
-    shearmix check CASE.yaml [--set key=value ...] [--ranks P]
+    shearmix check CASE.yaml [--set key=value ...] [--ranks P] [--ranks-per-node N]
     shearmix keys
 
 Under MPI: ``mpirun -n P shearmix run CASE.yaml``. Exit codes: 0 done, 1 an
@@ -39,7 +39,7 @@ def _load(args):
 
 
 def cmd_check(args) -> int:
-    from shearmix.solver.sizing import derived
+    from shearmix.solver.sizing import derived, memory_per_node, memory_shortfall, node_memory
     case, err = _load(args)
     if err:
         return _fail(err)
@@ -62,6 +62,16 @@ def cmd_check(args) -> int:
         print(f"  {key:34s} {value}")
     if args.ranks and args.ranks not in info["allowed rank counts"]:
         print(f"  warning: {args.ranks} ranks not allowed for this grid")
+    ranks = args.ranks or 1
+    per_node = min(args.ranks_per_node or ranks, ranks)
+    node = node_memory()
+    if node is not None:
+        print(f"  {'memory per node':34s} {memory_per_node(case, ranks, per_node) / 2 ** 20:.0f} "
+              f"MiB ({per_node} of {ranks} rank(s) on a node); this node: "
+              f"{node['available'] / 2 ** 20:.0f} MiB available of {node['total'] / 2 ** 20:.0f}")
+    short = memory_shortfall(case, ranks, per_node, node)
+    if short:
+        print(f"  warning: {short}: 'shearmix run' will refuse it (--no-memory-check)")
     for w in case.warnings:
         print(f"  warning: {w}")
     return 0
@@ -86,17 +96,85 @@ def _on_rank0(comm, work):
     if comm.rank == 0:
         try:
             result = work()
-        except ValueError as exc:  # RestartError, CheckpointError, HeaderError
+        except ValueError as exc:  # RestartError, CheckpointError, HeaderError, RunFolderError
             error = str(exc)
     return comm.bcast((result, error))
+
+
+def _memory_check(case, comm, allow: bool):
+    """The refusal message when the run would not fit its nodes' memory (None if it fits)."""
+    from shearmix.solver.compute.productpass import PhysicalPassError
+    from shearmix.solver.sizing import memory_shortfall
+    try:
+        mine = memory_shortfall(case, comm.size, comm.ranks_on_node())
+    except PhysicalPassError as exc:  # the same refusal the engine would give
+        return str(exc)
+    messages = comm.gather(mine)
+    message = comm.bcast(next((m for m in messages if m), None) if comm.rank == 0 else None)
+    if message is None or allow:
+        return None
+    return f"{message}; refusing to start (--no-memory-check runs it anyway)"
+
+
+def _choose_checkpoint(spec, case, out_dir, comm):
+    """``(path, checked, skipped, notes)`` of the checkpoint to continue from, or an error
+    message; collective (rank 0 reads the folder)."""
+    from shearmix.solver.run.restart import check, resolve
+    from shearmix.solver.run.rundir import check_restart
+    found, msg = _on_rank0(comm, lambda: resolve(spec, out_dir))
+    if msg:
+        return None, msg
+    path, skipped = found
+    try:
+        checked = check(path, case, comm)
+    except ValueError as exc:
+        return None, str(exc)
+    notes, msg = _on_rank0(comm, lambda: check_restart(case, out_dir, path,
+                                                       int(checked["header"]["step"])))
+    if msg:
+        return None, msg
+    return (path, checked, skipped, notes), None
+
+
+def _set_aside_quietly(path):
+    from shearmix.solver.files.checkpoint import set_aside
+    try:
+        return set_aside(path, "damaged")
+    except OSError:
+        return None
+
+
+def _restore(sim, spec, case, out_dir, chosen, comm):
+    """Load the chosen checkpoint into ``sim``; one whose columns fail their checksums is
+    set aside as ``*.damaged`` (in its own run folder) and, for ``latest`` or a folder,
+    the next older one is taken. Returns ``(chosen, warnings)`` or ``(None, message)``."""
+    from shearmix.solver.run.restart import RestartError, apply
+    warnings = []
+    own = os.path.realpath(os.path.join(out_dir, "checkpoints"))
+    while True:
+        path, checked = chosen[0], chosen[1]
+        try:
+            apply(sim, path, checked)
+            return chosen, warnings
+        except RestartError as exc:
+            message = str(exc)
+        if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own:
+            return None, message
+        aside, _ = _on_rank0(comm, lambda: _set_aside_quietly(path))
+        warnings.append(f"{message}; set aside as {aside}" if aside else message)
+        if os.path.isfile(spec):
+            return None, f"{warnings[-1]}; continue with --restart latest"
+        chosen, msg = _choose_checkpoint(spec, case, out_dir, comm)
+        if msg:
+            return None, f"{warnings[-1]}; {msg}"
 
 
 def cmd_run(args) -> int:
     from shearmix.solver.case import CaseError
     from shearmix.solver.compute.parallel import world
-    from shearmix.solver.files.series import SERIES_FILE
     from shearmix.solver.grid import GridError, allowed_rank_counts
     from shearmix.solver.physics.initial import InitialStateError
+    from shearmix.solver.run.rundir import check_new
 
     comm = world()
     rank0 = comm.rank == 0
@@ -110,43 +188,17 @@ def cmd_run(args) -> int:
                f"{comm.size} ranks; allowed: {', '.join(map(str, allowed_rank_counts(case.shape)))}")
         return _fail(msg) if rank0 else EXIT_BAD_INPUT
     out_dir = args.output or case.output_directory
-    series = os.path.join(out_dir, SERIES_FILE)
-    checked = None
+    chosen = None
     if args.restart:
-        from shearmix.solver.run.restart import check, resolve
-        found, msg = _on_rank0(comm, lambda: resolve(args.restart, out_dir))
-        if msg:
-            return _fail(msg) if rank0 else EXIT_BAD_INPUT
-        path, skipped = found
-        try:
-            checked = check(path, case, comm)
-        except ValueError as exc:
-            return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
-        from shearmix.solver.files.checkpoint import latest
-        own = os.path.join(os.path.realpath(out_dir), "checkpoints")
-        newest = latest(own)
-        if os.path.realpath(os.path.dirname(os.path.abspath(path))) != own:
-            if os.path.exists(series) or newest:
-                msg = (f"{out_dir}: already holds a run and {path} is not one of its "
-                       "checkpoints; continue it in a new --output folder")
-                return _fail(msg) if rank0 else EXIT_BAD_INPUT
-        elif newest and os.path.realpath(newest) != os.path.realpath(path):
-            # restarting here from an older state would discard (and prune) what followed
-            msg = (f"{path}: older than the newest checkpoint {newest} of this run; continue "
-                   "from it in a new --output folder, or restart from the newest")
-            return _fail(msg) if rank0 else EXIT_BAD_INPUT
+        chosen, msg = _choose_checkpoint(args.restart, case, out_dir, comm)
     else:
-        from shearmix.solver.files.checkpoint import list_checkpoints
-        held = SERIES_FILE if os.path.exists(series) else (
-            "checkpoints" if list_checkpoints(os.path.join(out_dir, "checkpoints")) else None)
-        if held and not case.get("output.overwrite"):
-            msg = (f"{out_dir}: already holds a run ({held}); continue it with --restart "
-                   "latest, choose another --output or set output.overwrite=true to replace it")
-            return _fail(msg) if rank0 else EXIT_BAD_INPUT
-        if case.get("initial.kind") in ("file", "eigenmode") and \
-            not os.path.exists(case.get("initial.path")):
+        _, msg = _on_rank0(comm, lambda: check_new(case, out_dir))
+        if not msg and case.get("initial.kind") in ("file", "eigenmode") and \
+                not os.path.exists(case.get("initial.path")):
             msg = f"{case.get('initial.path')}: initial.path: no such perturbation file"
-            return _fail(msg) if rank0 else EXIT_BAD_INPUT
+    msg = msg or _memory_check(case, comm, args.no_memory_check)
+    if msg:
+        return _fail(msg) if rank0 else EXIT_BAD_INPUT
     if rank0:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
@@ -154,28 +206,25 @@ def cmd_run(args) -> int:
     from shearmix.solver.compute.productpass import PhysicalPassError
     from shearmix.solver.run.simulation import Simulation
     try:
-        sim = Simulation(case, comm, initial=checked is None)
+        sim = Simulation(case, comm, initial=chosen is None)
     except (InitialStateError, GridError, CaseError, PhysicalPassError,
             KernelBackendError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
-    if checked is not None:
-        from shearmix.solver.run.restart import RestartError, apply, truncate_series
-        try:
-            apply(sim, path, checked)
-        except RestartError as exc:
-            return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
+    if chosen is not None:
+        chosen, warnings = _restore(sim, args.restart, case, out_dir, chosen, comm)
+        if chosen is None:
+            return _fail(warnings) if rank0 else EXIT_BAD_INPUT
+        path, checked, skipped, notes = chosen
         if rank0:
             for why in skipped:
                 print(f"shearmix: warning: passed over {why}", file=sys.stderr)
+            for note in notes + warnings:
+                print(f"shearmix: warning: {note}", file=sys.stderr)
             changed = ", ".join(f"{k} {a!r} -> {b!r}" for k, (a, b) in checked["changes"].items())
             print(f"shearmix: restarting from {path} at step {sim.step_count}, t = {sim.t:.10g}"
                   + (f"; changed: {changed}" if changed else ""), flush=True)
-            dropped = truncate_series(series, sim.step_count)
-            if dropped:
-                print(f"shearmix: {series}: dropped {dropped} record(s) from step "
-                      f"{sim.step_count} on, written after that checkpoint", flush=True)
         comm.barrier()
-    return sim.run(output=out_dir, append=checked is not None)
+    return sim.run(output=out_dir, append=chosen is not None)
 
 
 def cmd_info(args) -> int:
@@ -208,6 +257,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--wall-hours", type=float, metavar="H",
                    help="wall-clock budget: write a checkpoint and exit 4 before H hours "
                         "(same as --set time.wall_hours=H)")
+    p.add_argument("--no-memory-check", action="store_true",
+                   help="start even when the expected memory exceeds what a node has "
+                        "available (otherwise refused with exit 2)")
     p.set_defaults(func=cmd_run)
 
     p = sub.add_parser("info", help="what a checkpoint or snapshot holds (no fields loaded)")
@@ -220,6 +272,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("case")
     p.add_argument("--set", action="append", metavar="KEY=VALUE")
     p.add_argument("--ranks", type=int, help="rank count to size the run for")
+    p.add_argument("--ranks-per-node", type=int, metavar="N",
+                   help="ranks sharing one node's memory (default: all of them)")
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("keys", help="list every case-file key with its default")
@@ -239,9 +293,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
+    from shearmix.solver.compute.parallel import ending_every_rank
     parser = build_parser()
     args = parser.parse_args(argv)
-    return int(args.func(args) or 0)
+    with ending_every_rank():
+        return int(args.func(args) or 0)
 
 
 if __name__ == "__main__":

@@ -6,7 +6,10 @@ Set ``SHEARMIX_SERIAL=1`` to skip MPI even where it is installed.
 from __future__ import annotations
 
 import atexit
+import contextlib
 import os
+import sys
+import traceback
 
 import numpy as np
 
@@ -222,3 +225,23 @@ def world():
     if MPI.COMM_WORLD.Get_size() == 1:
         return SerialComm()
     return MPIComm(MPI.COMM_WORLD)
+
+
+@contextlib.contextmanager
+def ending_every_rank(code: int = 1):
+    """Run the body; an exception escaping it on one rank of several ends them all.
+
+    Its traceback is printed and ``MPI_Abort(code)`` ends every rank, so no
+    rank waits for ever in a collective call the failed one will never make.
+    Serially (or before MPI was started) the exception propagates unchanged.
+    """
+    try:
+        yield
+    except Exception:
+        MPI = sys.modules.get("mpi4py.MPI")
+        if MPI is not None and MPI.Is_initialized() and not MPI.Is_finalized() \
+                and MPI.COMM_WORLD.Get_size() > 1:
+            traceback.print_exc()
+            sys.stderr.flush()
+            MPI.COMM_WORLD.Abort(code)
+        raise

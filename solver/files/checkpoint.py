@@ -229,23 +229,48 @@ def latest(directory: str, skipped: list | None = None) -> str | None:
     return None
 
 
-def prune(directory: str, keep: int, newest: str) -> list:
-    """Remove all but the ``keep`` newest checkpoints and stale temporary files.
+def set_aside(path: str, why: str) -> str:
+    """Rename ``path`` to ``path.<why>`` (``damaged``, ``superseded``): out of every
+    listing, never deleted. Returns the new name (a free one: ``.<why>.2``, ...)."""
+    target, n = f"{path}.{why}", 1
+    while os.path.exists(target):
+        n += 1
+        target = f"{path}.{why}.{n}"
+    os.replace(path, target)
+    return target
 
-    ``newest`` is the file just completed; nothing is removed unless it
-    exists. Returns the removed paths. Call on one rank.
+
+def prune(directory: str, keep: int, newest: str) -> list:
+    """Keep the ``keep`` newest good checkpoints; remove older ones and stale temporaries.
+
+    ``newest`` is the file just completed; nothing is touched unless it
+    exists. A file whose header fails its checks does not count among the
+    kept: it is set aside as ``*.damaged``. Returns the removed paths (set
+    aside ones included). Call on one rank.
     """
     if not os.path.exists(newest):
         return []
     removed = []
-    listed = list_checkpoints(directory)
-    for _, path in listed[:max(0, len(listed) - keep)]:
+    kept = 0
+    for _, path in reversed(list_checkpoints(directory)):
         if os.path.abspath(path) != os.path.abspath(newest):
             try:
-                os.remove(path)
-                removed.append(path)
-            except OSError:
-                pass  # an old file we cannot remove does no harm
+                read_checkpoint_header(path)
+            except CheckpointError:
+                try:
+                    set_aside(path, "damaged")
+                    removed.append(path)
+                except OSError:
+                    pass
+                continue
+        if kept < keep or os.path.abspath(path) == os.path.abspath(newest):
+            kept += 1
+            continue
+        try:
+            os.remove(path)
+            removed.append(path)
+        except OSError:
+            pass  # an old file we cannot remove does no harm
     for name in os.listdir(directory):
         if name.startswith(".chk_") and name.endswith(".tmp"):
             try:  # left by a write that was killed; its run is not writing any more
@@ -279,10 +304,8 @@ class CheckpointOutput(Output):
     def open(self, sim, out_dir, append):
         super().open(sim, out_dir, append)
         self.directory = os.path.join(out_dir, FOLDER)
-        # a new run replaces the folder's run (shearmix run allows it only with
-        # output.overwrite): older checkpoints would be taken for its latest
-        prepare_folder(sim.comm, self.directory, "checkpoints",
-                       None if append else lambda d: [p for _, p in list_checkpoints(d)])
+        # a replaced run's checkpoints are gone already (shearmix.solver.run.rundir)
+        prepare_folder(sim.comm, self.directory, "checkpoints")
         if self.cadence is not None:
             self.cadence.start(sim.t, now=False)
         self.last_wall = time.monotonic()

@@ -35,8 +35,10 @@ from shearmix.solver.files.checkpoint import (
     FOLDER,
     CheckpointError,
     latest,
+    list_checkpoints,
     read_checkpoint_header,
     read_fields,
+    set_aside,
 )
 from shearmix.solver.files.fileheader import history_of, now
 from shearmix.solver.files.slabfile import agree
@@ -60,7 +62,9 @@ def _flat(tree: dict, prefix: str = "") -> dict:
 def resolve(spec: str, run_dir: str) -> tuple:
     """The checkpoint file ``spec`` names: a path, a folder of checkpoints, or ``latest``
     (the newest complete checkpoint of ``run_dir``). Returns ``(path, skipped)``,
-    ``skipped`` the one-line reasons newer files were passed over."""
+    ``skipped`` the one-line reasons newer files were passed over. With ``latest``
+    those files, the run's own, are set aside as ``*.damaged``
+    (:func:`shearmix.solver.files.checkpoint.set_aside`). Call on one rank."""
     skipped: list = []
     if spec == "latest":
         folder = os.path.join(run_dir, FOLDER)
@@ -68,6 +72,13 @@ def resolve(spec: str, run_dir: str) -> tuple:
         if path is None:
             why = f" ({skipped[0]})" if skipped else ""
             raise RestartError(f"{folder}: no complete checkpoint to restart from{why}")
+        step = int(read_checkpoint_header(path)["step"])
+        newer = [p for s, p in reversed(list_checkpoints(folder)) if s > step]
+        for i, bad in enumerate(newer[:len(skipped)]):
+            try:
+                skipped[i] += f"; set aside as {set_aside(bad, 'damaged')}"
+            except OSError:
+                pass  # still passed over, as before
         return path, skipped
     if os.path.isdir(spec):
         sub = os.path.join(spec, FOLDER)

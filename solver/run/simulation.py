@@ -30,10 +30,10 @@ from shearmix.solver.physics.basis import CrayaHerring
 from shearmix.solver.physics.initial import apply_initial
 from shearmix.solver.physics.models import Model, model_for
 from shearmix.solver.physics.tendency import PseudoSpectralTendency
+from shearmix.solver.run import rundir
 from shearmix.solver.run.imex import TABLEAUX, make_stepper
 from shearmix.solver.run.outputs import TimeSeriesOutput
 from shearmix.solver.run.stopsignals import StopRequests, signal_name
-from shearmix.solver.version import __version__
 
 EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
 EXIT_WRITE_FAILED = 5
@@ -260,12 +260,12 @@ class Simulation:
         wall = case.get("time.wall_hours")
         progress = int(case.get("output.progress_every"))
         self.outputs = outputs if outputs is not None else self.default_outputs()
-        if comm.rank == 0:
-            os.makedirs(out_dir, exist_ok=True)
-            with open(os.path.join(out_dir, "case.yaml"), "w", encoding="utf-8") as fh:
-                fh.write(f"# written by shearmix {__version__}\n")
-                fh.write(case.to_yaml())
-        comm.barrier()
+        try:  # the run-folder rules; the history starts at the state the run starts from
+            for note in rundir.start(self, out_dir, append):
+                say(f"shearmix: {note}")
+        except rundir.RunFolderError as exc:
+            say(f"shearmix: error: {exc}")
+            return EXIT_BAD_INPUT
         opened = []
         try:
             for out in self.outputs:
