@@ -283,3 +283,63 @@ def test_chained_member_starts_from_its_neighbour(tmp_path):
     assert [x for x in st.stdout.splitlines() if x.startswith("BPe5")][0].split()[3] == "0.8/0.8"
     with h5py.File(tmp_path / "chain" / "runs" / "BPe5" / "timeseries.h5") as fh:
         assert "BPe: 5" in fh.attrs["case"]
+
+
+@pytest.mark.parametrize("system,submit,job_id", [("slurm", "sbatch", "SLURM_JOB_ID"),
+                                                  ("pbs", "qsub", "PBS_JOBID")])
+def test_batch_script_runs_with_the_installed_mpi_on_a_clean_path(tmp_path, system, submit,
+                                                                   job_id):
+    """The generated job, run by bash with only a stub submitter and the system folders
+    on PATH (as a compute node has before any module load), runs its member to the end
+    with the environment's own mpiexec, and each job keeps its own log."""
+    from shearmix.tools.sweeps.batch import write_batch_scripts
+    here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    if not os.path.exists(here):
+        pytest.skip("this environment has no MPI of its own (SHEARMIX_SYSTEM_MPI=1)")
+    base = dict(TINY_BASE, time={"t_end": 0.04, "dt": 0.02, "adaptive": False})
+    sw = load_sweep(_write(tmp_path, {"sweep": "jobs", "base_case": base,
+                                      "vary": {"parameters.BPe": [1]}}))
+    (path,) = write_batch_scripts(sw, system, walltime="01:00:00", ranks=1)
+    text = open(path).read()
+    assert f"--launcher '{here} -n {{ranks}}'" in text and "module load" in text
+    stub = tmp_path / "stub"
+    stub.mkdir()
+    (stub / submit).write_text(f"#!/bin/sh\necho \"$@\" >> {tmp_path}/submitted\n")
+    (stub / submit).chmod(0o755)
+    env = {"PATH": f"{stub}:/usr/bin:/bin", "HOME": str(tmp_path), "OMP_NUM_THREADS": "1"}
+    member = sw.members[0]
+    logs = []
+    for n in ("101", "102"):
+        r = subprocess.run(["bash", path], env=dict(env, **{job_id: n}), capture_output=True,
+                           text=True, timeout=300)
+        assert r.returncode == 0, r.stdout + r.stderr
+        if system == "pbs":  # SLURM itself writes batch-%j.out; the PBS job does it
+            log = os.path.join(sw.run_dir(member), f"batch-{n}.out")
+            assert os.path.exists(log)
+            logs.append(open(log).read())
+    assert os.path.exists(os.path.join(sw.run_dir(member), "timeseries.h5"))
+    assert not (tmp_path / "submitted").exists()
+    if system == "pbs":
+        assert logs[0] and logs[1] and logs[0] != logs[1]  # the second job did not overwrite
+
+
+def test_batch_launcher_follows_the_recorded_mpi(tmp_path):
+    from shearmix.tools.sweeps.batch import MPI_RECORD, installed_mpi, launcher
+    (tmp_path / MPI_RECORD).write_text("system\n")
+    assert installed_mpi(str(tmp_path)) == "system"
+    assert launcher("slurm", "system") == "srun -n {ranks}"
+    assert launcher("pbs", "system") == "mpiexec -n {ranks}"
+    (tmp_path / MPI_RECORD).write_text("bundled\n")
+    assert installed_mpi(str(tmp_path)) == "bundled"
+    here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    assert launcher("pbs", "bundled") == f"{here} -n {{ranks}}"
+
+
+def test_batch_template_missing_is_a_one_line_error(tmp_path, monkeypatch):
+    import shearmix.tools.sweeps.batch as batch
+    sw = load_sweep(_write(tmp_path, {"sweep": "jobs", "base_case": TINY_BASE,
+                                      "vary": {"parameters.BPe": [1]}}))
+    monkeypatch.setattr(batch, "template_path", lambda system: str(tmp_path / "none.sh.in"))
+    with pytest.raises(batch.BatchError, match=r"none\.sh\.in: cannot read the pbs template.*"
+                                               r"source tree"):
+        batch.write_batch_scripts(sw, "pbs")

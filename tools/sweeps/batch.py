@@ -4,15 +4,21 @@ The templates are ``scripts/batch/slurm.sh.in`` and ``scripts/batch/pbs.sh.in``
 (placeholders ``@NAME@``, listed in :data:`PLACEHOLDERS`). Each job runs
 
     shearmix sweep run SWEEP.yaml --only MEMBER --ranks R --retry
-        --launcher 'srun -n {ranks}' (SLURM) | 'mpiexec -n {ranks}' (PBS)
-        --wall-hours H
+        --launcher L --wall-hours H
 
-with ``H`` the job's wall time minus a margin, so the engine writes a
+with ``L`` the MPI the installation was built with (:func:`launcher`): the
+``mpiexec`` of the environment's own MPI (``scripts/setup`` installs one), or,
+when ``scripts/setup`` ran with ``SHEARMIX_SYSTEM_MPI=1`` (recorded in
+``<environment>/shearmix-mpi``), the site's ``srun -n {ranks}`` (SLURM) or
+``mpiexec -n {ranks}`` (PBS) from the job's PATH after the site's module loads,
+
+and ``H`` the job's wall time minus a margin, so the engine writes a
 checkpoint and exits with code 4 before the scheduler kills the job; the
 script then submits itself again (``sbatch``/``qsub``), up to a maximum count
 kept in ``runs/<member>/batch-resubmits``. The next job resumes the member
 from its latest checkpoint (``shearmix run --restart latest``, chosen by the
-sweep launcher from the member's state). Scripts go to
+sweep launcher from the member's state). Each job writes its own log,
+``runs/<member>/batch-<job id>.out``. Scripts go to
 ``<sweep folder>/batch/<member>.<system>.sh``.
 """
 from __future__ import annotations
@@ -25,8 +31,9 @@ import sys
 
 from shearmix.tools.sweeps.launch import shearmix_command
 
-__all__ = ["BatchError", "SYSTEMS", "PLACEHOLDERS", "template_path", "parse_walltime",
-           "render", "write_batch_scripts", "submit"]
+__all__ = ["BatchError", "SYSTEMS", "PLACEHOLDERS", "MPI_RECORD", "template_path",
+           "installed_mpi", "launcher", "parse_walltime", "render", "write_batch_scripts",
+           "submit"]
 
 SYSTEMS = {
     "slurm": {"template": "slurm.sh.in", "submit": "sbatch", "launcher": "srun -n {ranks}",
@@ -35,7 +42,10 @@ SYSTEMS = {
             "account": "#PBS -A {}", "queue": "#PBS -q {}"},
 }
 PLACEHOLDERS = ("SWEEP_NAME", "MEMBER", "JOB_NAME", "RANKS", "WALLTIME", "RUN_DIR", "WORK_DIR",
-                "EXTRA_DIRECTIVES", "RUN_COMMAND", "MAX_RESUBMITS", "SUBMIT", "SCRIPT")
+                "EXTRA_DIRECTIVES", "RUN_COMMAND", "MAX_RESUBMITS", "SUBMIT", "SCRIPT",
+                "BIN_DIR", "MPI")
+#: written by scripts/setup into the environment: ``bundled`` or ``system``
+MPI_RECORD = "shearmix-mpi"
 
 
 class BatchError(ValueError):
@@ -46,6 +56,32 @@ def template_path(system):
     """Path of the template of ``system`` in the source tree's ``scripts/batch``."""
     root = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
     return os.path.join(root, "scripts", "batch", SYSTEMS[system]["template"])
+
+
+def installed_mpi(prefix=None):
+    """``'bundled'`` (the environment's own MPI) or ``'system'`` (the site's), as
+    ``scripts/setup`` recorded it; without a record, ``'bundled'`` when an
+    ``mpiexec`` sits beside the interpreter."""
+    prefix = sys.prefix if prefix is None else prefix
+    try:
+        with open(os.path.join(prefix, MPI_RECORD), encoding="utf-8") as fh:
+            choice = fh.read().strip()
+    except OSError:
+        choice = ""
+    if choice in ("bundled", "system"):
+        return choice
+    here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    return "bundled" if os.path.exists(here) else "system"
+
+
+def launcher(system, mpi=None):
+    """The ``--launcher`` of a job: the environment's own ``mpiexec`` by its full path
+    (``bundled``), or the site's launcher of ``system`` from PATH (``system``)."""
+    mpi = installed_mpi() if mpi is None else mpi
+    if mpi == "bundled":
+        here = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+        return f"{shlex.quote(here)} -n {{ranks}}"
+    return SYSTEMS[system]["launcher"]
 
 
 def parse_walltime(text):
@@ -70,10 +106,11 @@ def render(template, values):
 
 def write_batch_scripts(sweep, system, walltime="12:00:00", ranks=1, margin_minutes=10.0,
                         max_resubmits=20, queue=None, account=None, only=None,
-                        run_command=None):
+                        run_command=None, mpi=None):
     """Write one job script per member; return their paths.
 
-    ``run_command`` replaces the command the job runs (tests use a stand-in).
+    ``run_command`` replaces the command the job runs (tests use a stand-in);
+    ``mpi`` (``bundled``/``system``) replaces the recorded choice of MPI.
     """
     if system not in SYSTEMS:
         raise BatchError(f"--system: must be one of {', '.join(SYSTEMS)}, got {system!r}")
@@ -92,10 +129,14 @@ def write_batch_scripts(sweep, system, walltime="12:00:00", ranks=1, margin_minu
         with open(tpath, encoding="utf-8") as fh:
             template = fh.read()
     except OSError as exc:
-        raise BatchError(f"{tpath}: cannot read the {system} template ({exc.strerror})") from None
+        raise BatchError(f"{tpath}: cannot read the {system} template ({exc.strerror}); "
+                         "'sweep batch' reads its templates from the source tree's "
+                         "scripts/batch: install shearmix from its source folder "
+                         "(scripts/setup)") from None
     members = [sweep.member(n) for n in only] if only else sweep.members
     out_dir = os.path.join(sweep.directory, "batch")
     os.makedirs(out_dir, exist_ok=True)
+    mpi = installed_mpi() if mpi is None else mpi
     extra = "\n".join(spec[k].format(v) for k, v in (("account", account), ("queue", queue)) if v)
     paths = []
     from shearmix.tools.sweeps.spec import expand
@@ -104,13 +145,15 @@ def write_batch_scripts(sweep, system, walltime="12:00:00", ranks=1, margin_minu
         script = os.path.join(out_dir, f"{m.name}.{system}.sh")
         cmd = run_command or shlex.join(shearmix_command() + [
             "sweep", "run", sweep.source, "--only", m.name, "--ranks", str(ranks), "--retry",
-            "--launcher", spec["launcher"], "--wall-hours", f"{budget / 3600:.4f}"])
+            "--launcher", launcher(system, mpi), "--wall-hours", f"{budget / 3600:.4f}"])
         text = render(template, {
             "SWEEP_NAME": sweep.name, "MEMBER": m.name, "JOB_NAME": f"{sweep.name}-{m.name}"[:64],
             "RANKS": ranks, "WALLTIME": walltime, "RUN_DIR": sweep.run_dir(m),
             "WORK_DIR": os.path.dirname(sweep.source), "EXTRA_DIRECTIVES": extra,
             "RUN_COMMAND": cmd, "MAX_RESUBMITS": int(max_resubmits), "SUBMIT": spec["submit"],
-            "SCRIPT": script})
+            "SCRIPT": script, "BIN_DIR": os.path.dirname(sys.executable),
+            "MPI": "the site's (SHEARMIX_SYSTEM_MPI=1 at set-up)" if mpi == "system"
+            else "the environment's own (installed by scripts/setup)"})
         with open(script, "w", encoding="utf-8") as fh:
             fh.write(text)
         os.chmod(script, 0o755)
