@@ -151,6 +151,7 @@ def _restore(sim, spec, case, out_dir, chosen, comm):
     from shearmix.solver.run.restart import RestartError, apply
     warnings = []
     own = os.path.realpath(os.path.join(out_dir, "checkpoints"))
+    named_file = spec != "latest" and not os.path.isdir(spec)
     while True:
         path, checked = chosen[0], chosen[1]
         try:
@@ -162,7 +163,7 @@ def _restore(sim, spec, case, out_dir, chosen, comm):
             return None, message
         aside, _ = _on_rank0(comm, lambda: _set_aside_quietly(path))
         warnings.append(f"{message}; set aside as {aside}" if aside else message)
-        if os.path.isfile(spec):
+        if named_file:
             return None, f"{warnings[-1]}; continue with --restart latest"
         chosen, msg = _choose_checkpoint(spec, case, out_dir, comm)
         if msg:

@@ -88,6 +88,20 @@ def test_flipped_bytes_in_newest_then_latest_continues_from_the_older_one(cli, c
     assert np.all(np.diff(steps) > 0)
 
 
+def test_flipped_bytes_in_the_named_newest_is_set_aside_and_refused(cli, case_file, tmp_path):
+    assert cli("run", str(case_file), "-o", "out").returncode == 0
+    out = tmp_path / "out"
+    newest = _checkpoints(out)[-1]
+    _flip_field_bytes(out / "checkpoints" / newest)
+    before = _steps(out)
+    r = cli("run", str(case_file), "-o", "out", "--restart", f"out/checkpoints/{newest}")
+    assert r.returncode == 2
+    assert r.stderr.count("\n") == 1 and "checksum mismatch" in r.stderr
+    assert f"set aside as out/checkpoints/{newest}.damaged" in r.stderr
+    assert "continue with --restart latest" in r.stderr
+    assert np.array_equal(_steps(out), before)  # the series is untouched
+
+
 def test_flipped_bytes_in_newest_then_the_older_one_named_is_accepted(cli, case_file, tmp_path):
     assert cli("run", str(case_file), "-o", "out").returncode == 0
     out = tmp_path / "out"
