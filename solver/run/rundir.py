@@ -35,6 +35,7 @@ from shearmix.solver.files.checkpoint import (
 from shearmix.solver.files.fileheader import history_of
 from shearmix.solver.files.series import SERIES_FILE
 from shearmix.solver.files.slabfile import agree
+from shearmix.solver.run.restart import truncate_series
 from shearmix.solver.version import __version__
 
 CASE_FILE = "case.yaml"
@@ -130,7 +131,6 @@ def cut_back(out_dir: str, source: str | None, step: int) -> list:
     """Make the folder continue at ``step``: set newer checkpoints aside (as
     ``*.superseded``; the checks passed already) and drop the time-series records
     from ``step`` on. Rank 0 only; returns one-line notes of what was done."""
-    from shearmix.solver.run.restart import truncate_series
     notes = []
     if source is not None and os.path.realpath(os.path.dirname(os.path.abspath(source))) \
             == _own_folder(out_dir):

@@ -245,7 +245,8 @@ class Simulation:
             outputs: list | None = None) -> int:
         """Step to a stop condition, writing the outputs. Returns an exit code.
 
-        ``append`` continues the files of a run (a restart). SIGTERM and
+        ``append`` continues the files of a run (a restart). The run-folder rules
+        of :mod:`shearmix.solver.run.rundir` apply first (exit 2 if refused). SIGTERM and
         SIGUSR1 stop the run at the next step boundary, like the wall-clock
         budget; the budget stops it early enough to write the last checkpoint
         (margin: twice the longest step so far plus the last checkpoint's

@@ -16,7 +16,7 @@ import numpy as np
 from shearmix.solver.case import case_from_dict  # noqa: E402
 from shearmix.solver.compute.parallel import world  # noqa: E402
 from shearmix.solver.files.checkpoint import FOLDER, checkpoint_path  # noqa: E402
-from shearmix.solver.run.restart import apply, check, truncate_series  # noqa: E402
+from shearmix.solver.run.restart import apply, check  # noqa: E402
 from shearmix.solver.run.simulation import Simulation  # noqa: E402
 
 STEPS, FIRST = 20, 8
@@ -51,8 +51,7 @@ def run(case, directory, restart_from=None):
     sim = Simulation(case, comm, initial=restart_from is None)
     if restart_from:
         apply(sim, restart_from, check(restart_from, case, comm))
-    if restart_from and comm.rank == 0:  # as shearmix run --restart does
-        truncate_series(os.path.join(directory, "timeseries.h5"), sim.step_count)
+    # run(append=True) cuts the folder's time series back to the checkpoint itself
     code = sim.run(output=directory, append=restart_from is not None, log=lambda m: None)
     assert code == 0, code
     return sim

@@ -30,6 +30,10 @@ def test_meminfo_is_read_in_bytes(tmp_path):
     assert node_memory(str(p)) == {"available": 12000000 * 1024, "total": 24000000 * 1024}
     real = node_memory()
     assert real is not None and 0 < real["available"] <= real["total"]
+    # without the file: the page counts of POSIX sysconf
+    import os
+    page = os.sysconf("SC_PAGE_SIZE")
+    assert node_memory(str(tmp_path / "absent"))["total"] == os.sysconf("SC_PHYS_PAGES") * page
 
 
 def test_memory_per_node_shares_the_grid_among_the_ranks(tmp_path):
@@ -49,6 +53,8 @@ def test_check_warns_when_the_grid_exceeds_the_node(cli_process, tmp_path):
     assert r.returncode == 0, r.stderr
     assert "warning: grid 4096 x 4096 x 4096: expected memory" in r.stdout
     assert "exceeds the" in r.stdout and "MiB available on this node" in r.stdout
+    r = cli_process("check", "big.yaml", "--ranks", "4", "--ranks-per-node", "2", cwd=tmp_path)
+    assert r.returncode == 0 and "(2 of 4 rank(s) on a node)" in r.stdout
 
 
 def test_run_refuses_a_grid_larger_than_the_node_before_allocating(cli_process, tmp_path):
