@@ -211,3 +211,22 @@ def test_run_folder_under_a_file_is_bad_input_naming_it(cli, case_file, tmp_path
     assert r.returncode == 2
     assert r.stderr.count("\n") == 1 and "f/run: the run folder cannot be made" in r.stderr
     assert (tmp_path / "f").read_text() == "x"
+
+
+def test_run_folder_that_is_a_file_is_bad_input(cli, case_file, tmp_path):
+    (tmp_path / "f").write_text("x")
+    r = cli("run", str(case_file), "-o", "f")
+    assert r.returncode == 2 and "f: the run folder is a file, not a folder" in r.stderr
+    assert (tmp_path / "f").read_text() == "x"
+
+
+def test_damaged_checkpoint_of_another_run_is_refused_and_left_in_place(cli, case_file,
+                                                                        tmp_path):
+    assert cli("run", str(case_file), "-o", "a").returncode == 0
+    newest = tmp_path / "a" / "checkpoints" / _checkpoints(tmp_path / "a")[-1]
+    _flip_field_bytes(newest)
+    damaged = newest.read_bytes()
+    r = cli("run", str(case_file), "-o", "b", "--restart", str(newest))
+    assert r.returncode == 2 and "checksum mismatch" in r.stderr and "set aside" not in r.stderr
+    assert newest.read_bytes() == damaged  # another run's file: not renamed
+    assert not (tmp_path / "b").exists()
