@@ -230,3 +230,13 @@ def test_damaged_checkpoint_of_another_run_is_refused_and_left_in_place(cli, cas
     assert r.returncode == 2 and "checksum mismatch" in r.stderr and "set aside" not in r.stderr
     assert newest.read_bytes() == damaged  # another run's file: not renamed
     assert not (tmp_path / "b").exists()
+
+
+def test_unwritable_parent_is_named(tmp_path, monkeypatch):
+    # root may write anywhere, so the refusal of the file system is stood in for
+    from shearmix.solver.run import rundir
+    monkeypatch.setattr(rundir.os, "access", lambda path, mode: False)
+    with pytest.raises(rundir.RunFolderError,
+                       match=f"new/run: the run folder cannot be made: no permission to write "
+                             f"in {tmp_path}$"):
+        rundir.creatable(str(tmp_path / "new" / "run"))
