@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 import os
 import time
+from typing import NamedTuple
 
 import numpy as np
 import pyfftw
@@ -34,9 +35,25 @@ from shearmix.solver.run import rundir
 from shearmix.solver.run.imex import TABLEAUX, make_stepper
 from shearmix.solver.run.outputs import TimeSeriesOutput
 from shearmix.solver.run.stopsignals import StopRequests, signal_name
+from shearmix.solver.run.timestep import TimeStepControl
 
 EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
 EXIT_WRITE_FAILED = 5
+
+
+class RunLimits(NamedTuple):
+    """When a run stops (``time.t_end``, ``time.max_steps``, ``time.wall_hours``, any
+    of them None) and how often it prints progress; read once from the case."""
+
+    t_end: float | None
+    max_steps: int | None
+    wall_hours: float | None
+    progress_every: int
+
+    @classmethod
+    def from_case(cls, case) -> "RunLimits":
+        return cls(case.get("time.t_end"), case.get("time.max_steps"),
+                   case.get("time.wall_hours"), int(case.get("output.progress_every")))
 
 
 class BlowUp(RuntimeError):
@@ -113,7 +130,9 @@ class Simulation:
         self.t = 0.0
         self.step_count = 0
         self.dt = float(case.get("time.dt"))
-        self.adaptive = bool(case.get("time.adaptive"))
+        self.control = TimeStepControl.from_case(case)
+        self.limits = RunLimits.from_case(case)
+        self.adaptive = self.control.adaptive
         if initial:
             apply_initial(self)
 
@@ -183,44 +202,45 @@ class Simulation:
 
     def cfl_dt(self) -> float:
         """Largest step allowed by the advective CFL number and the ceiling."""
-        rate = self.tendency.cfl_rate
-        dt_max = float(self.case.get("time.dt_max"))
-        cfl = float(self.case.get("time.cfl"))
-        return dt_max if rate <= 0 else min(dt_max, cfl / rate)
+        return self.control.cfl_step(self.tendency.cfl_rate)
 
     def advance(self, dt: float | None = None, t_stop: float | None = None) -> float:
-        """One step: ``dt`` if given, else the adaptive (or fixed) step; returns the step taken."""
+        """One step: ``dt`` if given, else the controller's step; returns the step taken."""
         n0 = self._stage_zero(want_speed=True)
-        if not math.isfinite(self.tendency.cfl_rate):
-            raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
-        if dt is None:
-            if self.adaptive:
-                dt = min(self.cfl_dt(), 2.0 * self.dt)
-            else:
-                dt = self.dt
-        if t_stop is not None and self.t + dt > t_stop - 1e-12 * max(1.0, abs(t_stop)):
-            dt = t_stop - self.t
-        elif self.adaptive and dt < float(self.case.get("time.dt_min")):
-            raise BlowUp(self._blowup_message(
-                f"the CFL time step fell to {dt:.3g}, below time.dt_min = "
-                f"{self.case.get('time.dt_min'):g} (max |u| = {self.tendency.max_speed:.3g})"))
-        self.stepper.step(self.state, self.t, dt, n0)
-        self.t += dt
-        self.step_count += 1
-        if dt > 0 and (t_stop is None or abs(self.t - t_stop) > 1e-12 * max(1.0, abs(t_stop))):
-            self.dt = dt
-        return dt
+        self._check_finite()
+        return self._step(n0, self._chosen_step() if dt is None else dt, t_stop)
 
     def advance_to(self, t_end: float, dt: float | None = None) -> None:
         """Step until ``t_end`` exactly (the last step shortened)."""
-        while self.t < t_end - 1e-12 * max(1.0, abs(t_end)):
+        while not self.control.reached(self.t, t_end):
             self.advance(dt, t_stop=t_end)
+
+    def _check_finite(self) -> None:
+        if not math.isfinite(self.tendency.cfl_rate):
+            raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
+
+    def _chosen_step(self) -> float:
+        dt = self.control.choose(self.tendency.cfl_rate, self.dt)
+        if self.control.collapsed(dt):
+            raise BlowUp(self._blowup_message(
+                f"the CFL time step fell to {dt:.3g}, below time.dt_min = "
+                f"{self.control.dt_min:g} (max |u| = {self.tendency.max_speed:.3g})"))
+        return dt
+
+    def _step(self, n0, dt: float, t_stop: float | None) -> float:
+        dt, landed = self.control.land(self.t, dt, t_stop)
+        self.stepper.step(self.state, self.t, dt, n0)
+        self.t += dt
+        self.step_count += 1
+        if dt > 0 and not landed:
+            self.dt = dt
+        return dt
 
     def _blowup_message(self, what: str) -> str:
         nx, ny, nz = self.grid.shape
         return (f"blow-up at step {self.step_count}, t = {self.t:.6g}: {what}; refine the grid "
                 f"(grid.Nx/Ny/Nz, now {nx} x {ny} x {nz}) or lower time.cfl "
-                f"(now {self.case.get('time.cfl'):g})")
+                f"(now {self.control.cfl:g})")
 
     def diagnostics(self) -> dict:
         """Instantaneous diagnostics (collective); refreshes max |u| first."""
@@ -256,10 +276,7 @@ class Simulation:
         out_dir = output or case.output_directory
         log = log or (lambda msg: print(msg, flush=True))
         say = log if comm.rank == 0 else (lambda msg: None)
-        t_end = case.get("time.t_end")
-        max_steps = case.get("time.max_steps")
-        wall = case.get("time.wall_hours")
-        progress = int(case.get("output.progress_every"))
+        t_end, max_steps, wall, progress = self.limits
         self.outputs = outputs if outputs is not None else self.default_outputs()
         try:  # the run-folder rules; the history starts at the state the run starts from
             for note in rundir.start(self, out_dir, append):
@@ -290,8 +307,7 @@ class Simulation:
         try:
             while True:
                 n0 = self._stage_zero(want_speed=True)
-                if not math.isfinite(self.tendency.cfl_rate):
-                    raise BlowUp(self._blowup_message("the velocity is not finite (NaN or Inf)"))
+                self._check_finite()
                 # one collective call: a signal seen by any rank, the slowest rank's clock
                 signum, elapsed = comm.max(np.array([float(stop.received),
                                                      time.monotonic() - start_wall]))
@@ -311,7 +327,7 @@ class Simulation:
                     last_report = (now, self.step_count)
                     d = series.last if fresh else diag.compute(self)
                     say(self._progress_line(d, rate, start_wall, start_t, start_step))
-                done = (t_end is not None and self.t >= t_end - 1e-12 * max(1.0, t_end)) or \
+                done = self.control.reached(self.t, t_end) or \
                        (max_steps is not None and self.step_count - start_step >= max_steps)
                 if done:
                     break
@@ -351,33 +367,19 @@ class Simulation:
         return code
 
     def _step_with(self, n0, t_end):
-        if self.adaptive:
-            dt = min(self.cfl_dt(), 2.0 * self.dt)
-            if dt < float(self.case.get("time.dt_min")):
-                raise BlowUp(self._blowup_message(
-                    f"the CFL time step fell to {dt:.3g}, below time.dt_min = "
-                    f"{self.case.get('time.dt_min'):g} (max |u| = {self.tendency.max_speed:.3g})"))
-        else:
-            dt = self.dt
-        if t_end is not None and self.t + dt > t_end:
-            dt = t_end - self.t
-        else:
-            self.dt = dt
-        self.stepper.step(self.state, self.t, dt, n0)
-        self.t += dt
-        self.step_count += 1
+        return self._step(n0, self._chosen_step(), t_end)
 
     def _progress_line(self, d, rate, start_wall, start_t, start_step) -> str:
-        case = self.case
+        lim = self.limits
         elapsed = time.monotonic() - start_wall
         left = []
-        if case.get("time.t_end") is not None and self.t > start_t and elapsed > 0:
-            left.append((case.get("time.t_end") - self.t) * elapsed / (self.t - start_t))
-        if case.get("time.max_steps") is not None and self.step_count > start_step:
-            left.append((case.get("time.max_steps") - (self.step_count - start_step))
+        if lim.t_end is not None and self.t > start_t and elapsed > 0:
+            left.append((lim.t_end - self.t) * elapsed / (self.t - start_t))
+        if lim.max_steps is not None and self.step_count > start_step:
+            left.append((lim.max_steps - (self.step_count - start_step))
                         * elapsed / (self.step_count - start_step))
-        if case.get("time.wall_hours") is not None:
-            left.append(case.get("time.wall_hours") * 3600 - elapsed)
+        if lim.wall_hours is not None:
+            left.append(lim.wall_hours * 3600 - elapsed)
         remaining = _hms(min(left)) if left else "--:--:--"
         eta = d["eta"]
         return (f"step {self.step_count:7d}  t {self.t:10.4f}  dt {self.dt:9.3e}  "
