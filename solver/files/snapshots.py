@@ -33,7 +33,9 @@ import numpy as np
 
 from shearmix.solver.files.fileheader import common_attributes
 from shearmix.solver.files.slabfile import WriteFailed, agree, prepare_folder, write_global
+from shearmix.solver.physics.terms import quasi_static
 from shearmix.solver.run.outputs import EveryTime, Output
+from shearmix.solver.run.stepview import step_view
 
 FOLDER = "snapshots"
 COLLECTION = "snapshots.xmf"
@@ -50,25 +52,19 @@ def strided_shape(shape, stride: int) -> tuple:
     return (nz, ny, nx)
 
 
-def buoyancy_spectral(sim) -> np.ndarray:
+def buoyancy_spectral(view) -> np.ndarray:
     """``b_k = BPe alpha p_k / |k|^2`` on this rank's slab (zero at k = 0)."""
-    g, basis = sim.grid, sim.basis
-    k2 = np.where(g.k2 == 0, 1.0, g.k2)
-    return (sim.case.BPe * basis.alpha / k2) * sim.state[1] * basis.nonzero
+    return quasi_static(view.state[1], view.params.BPe, view.basis, view.grid)
 
 
-def local_fields(sim) -> dict:
+def local_fields(view) -> dict:
     """This rank's physical x-slabs of the snapshot fields, by name."""
-    u, v, w, T = sim.physical()
+    u, v, w, T = view.physical()
     out = {"u": u, "v": v, "w": w}
     if T is not None:
         out["T"] = T
     else:
-        phys = sim.fft.empty_physical()
-        spec = sim.fft.empty_spectral()
-        spec[...] = buoyancy_spectral(sim)
-        sim.fft.inverse(spec, phys)
-        out["b"] = phys
+        out["b"] = view.inverse(buoyancy_spectral(view))
     return out
 
 
@@ -81,7 +77,10 @@ def _x_part(grid, stride: int):
 
 
 def write_snapshot(sim, directory: str, single: bool = False, stride: int = 1) -> str:
-    """Write the physical fields of ``sim`` and the XDMF sidecar (collective); return the path."""
+    """Write the physical fields of ``sim`` (a simulation or its
+    :class:`shearmix.solver.run.stepview.StepView`) and the XDMF sidecar (collective);
+    return the path."""
+    sim = step_view(sim)
     g = sim.grid
     names = snapshot_fields(sim.case.model)
     path = os.path.join(directory, f"snap_{sim.step_count:09d}.h5")

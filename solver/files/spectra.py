@@ -13,8 +13,8 @@ any one spectrum add up to ``<f^2>/2`` exactly:
   (the smallest nonzero wavenumber of the box), wavenumber ``m dk``.
 
 Kinetic spectra are kept per velocity component (``u, v, w``; the kinetic
-energy is their sum, the horizontal spectrum in ``kz`` of DESIGN.md's
-``Lz_turb`` the sum of the first two). The thermal spectrum is that of ``T``
+energy is their sum, the horizontal spectrum in ``kz`` of ``Lz_turb``
+(docs/equations.md) the sum of the first two). The thermal spectrum is that of ``T``
 (boussinesq) or of the buoyancy ``b = BPe lap^{-1} w`` (lowpe, since ``T``
 itself needs ``Pe``), again as ``<f^2>/2``.
 
@@ -40,7 +40,9 @@ import h5py
 import numpy as np
 
 from shearmix.solver.files.series import stamp_provenance
+from shearmix.solver.physics.terms import quasi_static
 from shearmix.solver.run.outputs import Output
+from shearmix.solver.run.stepview import step_view
 
 SPECTRA_FILE = "spectra.h5"
 DIRECTIONS = ("kx", "ky", "kz", "shell")
@@ -87,19 +89,17 @@ class SpectralBins:
                            minlength=self.nbins[direction])
 
 
-def thermal_amplitudes(sim):
+def thermal_amplitudes(view):
     """Fourier amplitudes of the thermal field: ``T`` or ``b = BPe lap^{-1} w``."""
-    if "T" in sim.fields:
-        return sim.state[2], "T"
-    g, basis = sim.grid, sim.basis
-    k2safe = np.where(g.k2 == 0, 1.0, g.k2)
-    w_k = -basis.alpha * sim.state[1]
-    # lap^{-1} is -1/|k|^2 per mode; the k = 0 mode has alpha = 0, so it stays 0
-    return -sim.case.BPe * w_k / k2safe, "b = BPe lap^-1 w"
+    if "T" in view.fields:
+        return view.state[2], "T"
+    return quasi_static(view.state[1], view.params.BPe, view.basis, view.grid), \
+        "b = BPe lap^-1 w"
 
 
 def compute_spectra(sim, bins=None):
-    """All spectra of ``sim``'s current state, summed over ranks (collective call).
+    """All spectra of a step boundary (a simulation or its
+    :class:`shearmix.solver.run.stepview.StepView`), summed over ranks (collective call).
 
     Returns
     -------
@@ -107,6 +107,7 @@ def compute_spectra(sim, bins=None):
         ``kinetic``: direction -> array ``(3, nbins)``; ``thermal``:
         direction -> array ``(nbins,)``; ``thermal_field``: its name.
     """
+    sim = step_view(sim)
     bins = bins or SpectralBins(sim.grid)
     a, p = sim.state[0], sim.state[1]
     comp = np.empty(sim.grid.spectral_shape, complex)

@@ -1,4 +1,4 @@
-"""The reported numbers of DESIGN.md section 3, computed in spectral space.
+"""The reported numbers (docs/equations.md), computed in spectral space.
 
 Volume averages use Parseval's identity on the half spectrum (see
 :meth:`shearmix.solver.grid.Grid.volume_sum`). With these definitions, exactly
@@ -19,38 +19,38 @@ SERIES_NAMES = ("t", "step", "dt", "K", "Kx", "Ky", "Kz", "I", "eps", "J", "chi"
                 "kmax_etaK", "Lz_turb", "D_flux", "D_estimate", "Pe_turb")
 
 
-def compute(sim) -> dict:
-    """All instantaneous diagnostics of ``sim``'s current state (collective call)."""
-    g, basis, comm, case = sim.grid, sim.basis, sim.comm, sim.case
-    y = sim.state
+def compute(view) -> dict:
+    """All instantaneous diagnostics of a step boundary (collective call).
+
+    ``view``: a :class:`shearmix.solver.run.stepview.StepView`.
+    """
+    g, basis, comm, par = view.grid, view.basis, view.comm, view.params
+    y = view.state
     a, p = y[0], y[1]
-    local, e_h = kernels.spectral_sums(a, p, y[2] if "T" in sim.fields else None, basis, g)
+    local, e_h = kernels.spectral_sums(a, p, y[2] if "T" in view.fields else None, basis, g)
     sums = dict(zip(kernels.SUM_NAMES, local))
-    inj = 0.0
-    for idx, fa, fp in sim.tendency.forcing:
-        inj += (fa * np.conj(a[idx]) + fp * np.conj(p[idx])).real  # kz = 0: weight 1
-    sums["I"] = inj
+    sums["I"] = view.forcing.injection(a, p)
     keys = sorted(sums)
     totals = comm.sum(np.array([sums[k] for k in keys]))
     tot = dict(zip(keys, totals))
     e_h = comm.sum(e_h)
 
-    Re = case.Re
+    Re = par.Re
     K = tot["Kx"] + tot["Ky"] + tot["Kz"]
     eps = tot["grad2"] / Re
     nan = float("nan")
-    d = {"t": sim.t, "step": sim.step_count, "dt": sim.dt, "K": K, "Kx": tot["Kx"],
+    d = {"t": view.t, "step": view.step_count, "dt": view.dt, "K": K, "Kx": tot["Kx"],
          "Ky": tot["Ky"], "Kz": tot["Kz"], "I": tot["I"], "eps": eps}
-    Pe = case.Pe
-    if "T" in sim.fields:
-        B = case.B
+    Pe = par.Pe
+    if "T" in view.fields:
+        B = par.B
         d["J"] = B * tot["wT"]
         d["chi"] = (B / Pe) * tot["gradT2"]
         d["T_rms"] = math.sqrt(tot["T2"])
         d["b_rms"] = B * d["T_rms"]
         d["D_flux"] = -tot["wT"]
     else:
-        BPe = case.BPe
+        BPe = par.BPe
         d["J"] = BPe * tot["w_ilap_w"]
         d["chi"] = -d["J"]  # T = Pe lap^-1 w makes (B/Pe)<|grad T|^2> = -J exactly
         d["b_rms"] = BPe * math.sqrt(tot["b2"])
@@ -60,7 +60,7 @@ def compute(sim) -> dict:
     d["eta"] = -d["J"] / denom if denom > 0 else nan
     for name, key in (("u_rms", "Kx"), ("v_rms", "Ky"), ("w_rms", "Kz")):
         d[name] = math.sqrt(2 * tot[key])
-    d["umax"] = sim.tendency.max_speed
+    d["umax"] = view.max_speed
     d["kmax_etaK"] = g.kmax * (Re ** 3 * eps) ** -0.25 if eps > 0 else nan
     kz = 2 * np.pi / g.lengths[2] * np.arange(g.nzc)
     num = e_h[1:].sum()

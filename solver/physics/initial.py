@@ -58,8 +58,12 @@ def scatter_block(grid, block, m: int, out: np.ndarray | None = None) -> np.ndar
     return out
 
 
-def apply_initial(sim) -> None:
-    """Set ``sim``'s state from its case's ``initial`` section."""
+def apply_initial(sim, work) -> None:
+    """Set ``sim``'s state from its case's ``initial`` section.
+
+    ``work``: five spectral slabs the caller lends as scratch (their contents are
+    overwritten), so that the noise needs no full-size temporaries.
+    """
     case = sim.case
     kind = case.get("initial.kind")
     amp = float(case.get("initial.amplitude"))
@@ -82,7 +86,6 @@ def apply_initial(sim) -> None:
         return
     m = min(int(case.get("initial.noise_modes")), *g.cutoff)
     seed = int(case.get("initial.seed"))
-    work = sim.tendency.P  # the tendency's buffers: no full-size temporaries
     if "T" in sim.fields:
         T = scatter_block(g, noise_block(g.shape, m, seed, 3), m, out=work[0])
         rms = np.sqrt(sim.comm.sum(g.volume_sum(np.abs(T) ** 2)))

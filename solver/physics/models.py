@@ -1,4 +1,4 @@
-"""Models as sets of terms (DESIGN.md section 2).
+"""Models as sets of terms (docs/equations.md).
 
 ``boussinesq``: viscosity, thermal diffusion, buoyancy, background
 stratification (all implicit), advection of momentum and temperature and the

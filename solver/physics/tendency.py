@@ -22,6 +22,7 @@ from shearmix.solver.compute.productpass import PASS_CHOICES, physical_pass, pro
 from shearmix.solver.compute.transforms import SlabTransform
 from shearmix.solver.grid import Grid, true_runs
 from shearmix.solver.physics.basis import CrayaHerring
+from shearmix.solver.physics.forcing import ForcingModes
 from shearmix.solver.physics.terms import Advection, ShearForcing
 
 
@@ -79,7 +80,7 @@ class PseudoSpectralTendency:
         self.band = (grid.keep_x, grid.keep_y, grid.nz_kept)
         self.kvec = (np.ascontiguousarray(grid.kx.ravel()), np.ascontiguousarray(grid.ky.ravel()),
                      np.ascontiguousarray(grid.kz.ravel()))
-        self.forcing = self._forcing_modes(forcing)
+        self.forcing = ForcingModes(forcing, grid, self.basis)
         #: an output array that nothing but this tendency writes (the stepper's
         #: tendency register, set by the simulation): the chunked pass zeroes its
         #: rows outside the kept ky once instead of every evaluation
@@ -108,23 +109,6 @@ class PseudoSpectralTendency:
         spec[:, ~k[1]] = 0
         spec[:, :, ~k[2]] = 0
         return spec
-
-    def _forcing_modes(self, forcing):
-        if forcing is None or forcing.F0 == 0:
-            return []
-        g = self.grid
-        turns = int(round(forcing.kf * g.lengths[1] / (2 * np.pi)))
-        modes = []
-        for sign in (1, -1):
-            idx = g.local_index_of(0, sign * turns, 0)
-            if idx is None:
-                continue
-            fx = sign * forcing.F0 / 2j  # F0 sin(kf y): F0/(2i) at +kf, -F0/(2i) at -kf
-            s = self.basis.s[idx[0], idx[1], 0]
-            c = self.basis.c[idx[0], idx[1], 0]
-            beta = self.basis.beta[idx]
-            modes.append((idx, s * fx, beta * c * fx))
-        return modes
 
     def physical_fields(self, y: np.ndarray):
         """New arrays ``(u, v, w, T or None)``: state ``y`` on the grid."""

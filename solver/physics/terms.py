@@ -6,7 +6,7 @@ Linear terms are treated implicitly; each adds its coefficients to the
 per-wavenumber linear operator ``L`` (``d(field)/dt = L[field, source] * source``).
 Explicit terms (advection, forcing) add to the explicit tendency.
 
-Linear coefficients follow DESIGN.md section 2 in the Craya-Herring frame,
+Linear coefficients follow docs/equations.md in the Craya-Herring frame,
 with ``alpha = kh/|k|``. Each is a short sum of monomials ``c |k|^(2m) alpha^n``,
 given by the term as rows ``(c, m, n)``: the compiled stepper evaluates them per
 wavenumber and stores no coefficient array.
@@ -21,6 +21,8 @@ wavenumber and stores no coefficient array.
 from __future__ import annotations
 
 from dataclasses import dataclass
+
+import numpy as np
 
 
 @dataclass(frozen=True)
@@ -70,6 +72,18 @@ class QuasiStaticBuoyancy:
 
     def linear(self):
         return {("p", "p"): [(-self.BPe, -1, 2)]}
+
+
+def quasi_static(p: np.ndarray, factor: float, basis, grid) -> np.ndarray:
+    """``factor lap^{-1} w`` per mode from the poloidal amplitude ``p``.
+
+    ``w_k = -alpha p_k`` and ``lap^{-1} = -1/|k|^2``, so the result is
+    ``factor alpha p_k / |k|^2``; ``lap^{-1}`` is taken as zero on ``k = 0``.
+    The low-Peclet buoyancy is ``b = BPe lap^{-1} w`` and its temperature
+    ``T = Pe lap^{-1} w``.
+    """
+    k2 = np.where(grid.k2 == 0, 1.0, grid.k2)
+    return (factor * basis.alpha / k2) * p * basis.nonzero
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,9 @@
 The run loop calls, for every output, ``open`` once, then before each step
 ``due`` and, when due, ``write`` (collective calls, at the state of the start
 of the step), and ``close`` once with the reason the run ended
-('finished', 'stopped' or 'blowup'). New kinds of output (checkpoints,
+('finished', 'stopped' or 'blowup'). Each call receives the
+:class:`shearmix.solver.run.stepview.StepView` of that step boundary, never the
+simulation. New kinds of output (checkpoints,
 snapshots, spectra) subclass :class:`Output` and are added to the list.
 """
 from __future__ import annotations
@@ -13,6 +15,7 @@ import os
 
 from shearmix.solver.files.series import SERIES_FILE, TimeSeriesWriter
 from shearmix.solver.physics import diagnostics as diag
+from shearmix.solver.run.stepview import step_view
 
 
 class Output:
@@ -73,7 +76,7 @@ class EveryTime:
 
 
 class TimeSeriesOutput(Output):
-    """Diagnostics of DESIGN.md section 3 appended to ``timeseries.h5``."""
+    """The reported numbers (docs/equations.md) appended to ``timeseries.h5``."""
 
     def __init__(self, every: int):
         self.cadence = EveryNSteps(every)
@@ -92,11 +95,12 @@ class TimeSeriesOutput(Output):
         return self.cadence(sim)
 
     def write(self, sim):
-        d = diag.compute(sim)
+        view = step_view(sim)
+        d = diag.compute(view)
         d["budget_residual"] = self.budget(d)
         if self.writer is not None:
             self.writer.append(d)
-        self.last, self.last_step = d, sim.step_count
+        self.last, self.last_step = d, view.step_count
 
     def flush(self):
         if self.writer is not None:

@@ -42,6 +42,7 @@ from shearmix.solver.files.checkpoint import (
 )
 from shearmix.solver.files.fileheader import history_of, now
 from shearmix.solver.files.slabfile import agree
+from shearmix.solver.physics.terms import quasi_static
 from shearmix.solver.version import __version__
 
 
@@ -140,13 +141,6 @@ def check(path: str, case: Case, comm) -> dict:
     return comm.bcast(result)
 
 
-def quasi_static_T(sim, p: np.ndarray, Pe: float) -> np.ndarray:
-    """``T_k = Pe alpha p_k / |k|^2`` (``T = Pe lap^{-1} w``), zero at k = 0."""
-    g, basis = sim.grid, sim.basis
-    k2 = np.where(g.k2 == 0, 1.0, g.k2)
-    return (Pe * basis.alpha / k2) * p * basis.nonzero
-
-
 def apply(sim, path: str, checked: dict) -> None:
     """Load the checkpoint into ``sim`` (built for the new case, collective) and record
     the restart in ``sim.history``. Raises :class:`RestartError` on every rank if a
@@ -170,7 +164,8 @@ def apply(sim, path: str, checked: dict) -> None:
             # elsewhere may carry some there
             sim.state[i] *= sim.grid.dealias
         elif name == "T":
-            sim.state[i] = quasi_static_T(sim, sim.state[sim.fields.index("p")], sim.case.Pe)
+            sim.state[i] = quasi_static(sim.state[sim.fields.index("p")], sim.case.Pe,
+                                        sim.basis, sim.grid)  # T = Pe lap^-1 w
             sim.state[i] *= sim.grid.dealias
     sim.t = float(header["t"])
     sim.step_count = int(header["step"])

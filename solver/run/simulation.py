@@ -24,6 +24,7 @@ from shearmix.solver.case import Case
 from shearmix.solver.compute import kernels
 from shearmix.solver.compute.parallel import world
 from shearmix.solver.compute.transforms import SlabTransform, load_wisdom, save_wisdom
+from shearmix.solver.files.fileheader import start_event
 from shearmix.solver.files.slabfile import WriteFailed
 from shearmix.solver.grid import Grid
 from shearmix.solver.physics import diagnostics as diag
@@ -35,6 +36,7 @@ from shearmix.solver.run import rundir
 from shearmix.solver.run.imex import TABLEAUX, make_stepper
 from shearmix.solver.run.outputs import TimeSeriesOutput
 from shearmix.solver.run.stopsignals import StopRequests, signal_name
+from shearmix.solver.run.stepview import Parameters, StepView
 from shearmix.solver.run.timestep import TimeStepControl
 
 EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
@@ -133,8 +135,14 @@ class Simulation:
         self.control = TimeStepControl.from_case(case)
         self.limits = RunLimits.from_case(case)
         self.adaptive = self.control.adaptive
+        self.params = Parameters.from_case(case)
+        self.history = [start_event(self)]  # a restart replaces it with the file's
+        self._state_view = self.state.view()
+        self._state_view.flags.writeable = False
         if initial:
-            apply_initial(self)
+            # the product buffers hold nothing between tendency evaluations:
+            # lent as work arrays, so the initial state makes no full-size temporaries
+            apply_initial(self, work=self.tendency.P)
 
     # ------------------------------------------------------------ state in and out
     def set_physical(self, u, v, w, T=None) -> None:
@@ -167,6 +175,20 @@ class Simulation:
     def physical(self):
         """Local physical slabs ``(u, v, w, T or None)`` of the current state (copies)."""
         return self.tendency.physical_fields(self.state)
+
+    def _inverse(self, spec):
+        work = self.fft.empty_spectral()
+        work[...] = spec
+        return self.fft.inverse(work, self.fft.empty_physical())
+
+    def view(self) -> StepView:
+        """The read-only view of the current step boundary that outputs receive."""
+        return StepView(t=self.t, step_count=self.step_count, dt=self.dt,
+                        state=self._state_view, max_speed=self.tendency.max_speed,
+                        history=self.history, grid=self.grid, comm=self.comm,
+                        basis=self.basis, fields=self.fields, params=self.params,
+                        forcing=self.tendency.forcing, case=self.case,
+                        to_physical=self.tendency.physical_fields, inverse=self._inverse)
 
     def add_mode(self, nx: int, ny: int, nz: int, component: str, amplitude: float) -> None:
         """Add ``amplitude * e cos(k.x)`` with ``e`` the frame vector of ``component`` at k."""
@@ -245,7 +267,7 @@ class Simulation:
     def diagnostics(self) -> dict:
         """Instantaneous diagnostics (collective); refreshes max |u| first."""
         self._stage_zero(want_speed=True)
-        return diag.compute(self)
+        return diag.compute(self.view())
 
     # ------------------------------------------------------------ the run loop
     def default_outputs(self) -> list:
@@ -285,14 +307,15 @@ class Simulation:
             say(f"shearmix: error: {exc}")
             return EXIT_BAD_INPUT
         opened = []
+        view = self.view()
         try:
             for out in self.outputs:
-                out.open(self, out_dir, append)
+                out.open(view, out_dir, append)
                 opened.append(out)
         except WriteFailed as exc:
             say(f"shearmix: {exc}; nothing was run")
             for out in opened:
-                out.close(self, "failed")
+                out.close(view, "failed")
             return EXIT_WRITE_FAILED
         series = next((o for o in self.outputs if isinstance(o, TimeSeriesOutput)), None)
         checkpoints = [o for o in self.outputs if hasattr(o, "write_seconds")]
@@ -313,11 +336,12 @@ class Simulation:
                                                      time.monotonic() - start_wall]))
                 current = time.monotonic()
                 longest, previous = max(longest, current - previous), current
+                view = self.view()
                 for out in self.outputs:
-                    if out.due(self):
+                    if out.due(view):
                         if out is not series and series is not None:
                             series.flush()  # the series reaches every file written after it
-                        out.write(self)
+                        out.write(view)
                 fresh = series is not None and series.last_step == self.step_count
                 if fresh and not math.isfinite(series.last["K"]):
                     raise BlowUp(self._blowup_message("the kinetic energy is not finite"))
@@ -325,7 +349,7 @@ class Simulation:
                     now = time.monotonic()
                     rate = (self.step_count - last_report[1]) / max(now - last_report[0], 1e-9)
                     last_report = (now, self.step_count)
-                    d = series.last if fresh else diag.compute(self)
+                    d = series.last if fresh else diag.compute(view)
                     say(self._progress_line(d, rate, start_wall, start_t, start_step))
                 done = self.control.reached(self.t, t_end) or \
                        (max_steps is not None and self.step_count - start_step >= max_steps)
@@ -350,10 +374,11 @@ class Simulation:
         except WriteFailed as exc:
             say(f"shearmix: {exc}; stopping: the last complete checkpoint is kept")
             code, reason = EXIT_WRITE_FAILED, "failed"
+        view = self.view()
         try:
             for out in self.outputs:
                 try:
-                    out.close(self, reason)
+                    out.close(view, reason)
                 except WriteFailed as exc:
                     say(f"shearmix: {exc}; the last complete checkpoint is kept")
                     code, reason = EXIT_WRITE_FAILED, "failed"
