@@ -55,24 +55,27 @@ def test_series_and_spectra_png(tiny_run, tmp_path):
     assert_png(plots.plot_spectra(str(tiny_run), str(tmp_path / "sp.png"), start=0.5))
 
 
-def _write_checkpoint(path, shape, lengths, modes):
-    """A file in the checkpoint layout of solver/files/checkpoint.py holding given amplitudes."""
-    nx, ny, nz = shape
-    state = {f: np.zeros((nx, ny, nz // 2 + 1), complex) for f in ("a", "p")}
+def _write_checkpoint(make_case, folder, shape, modes, t=3.5):
+    """A checkpoint of a (2 pi)^3 box written by the engine's writer, its state set to
+    the given amplitudes."""
+    from shearmix.solver.files.checkpoint import write_checkpoint
+    case = make_case(grid=dict(zip(("Nx", "Ny", "Nz"), shape)), box={"Lx": "2*pi"},
+                     initial={"kind": "rest"})
+    sim = Simulation(case)
+    nx, ny, _ = shape
+    sim.state[...] = 0
     for field, (ix, iy, iz), value in modes:
-        state[field][ix % nx, iy % ny, iz] = value
-    os.makedirs(os.path.dirname(path), exist_ok=True)
-    with h5py.File(path, "w") as fh:
-        fh.attrs.update(grid=np.array(shape), lengths=np.array(lengths), t=3.5, complete=1)
-        for f, s in state.items():
-            fh[f"state/{f}"] = np.stack([s.real, s.imag], axis=-1)
+        sim.state[("a", "p").index(field), ix % nx, iy % ny, iz] = value
+    sim.t, sim.step_count = t, 10
+    os.makedirs(folder, exist_ok=True)
+    return write_checkpoint(sim, folder)
 
 
-def test_slices_from_checkpoint_match_closed_form(tmp_path):
+def test_slices_from_checkpoint_match_closed_form(make_case, tmp_path):
     shape, lengths = (8, 8, 8), (2 * math.pi,) * 3
     A, B = 0.8, 0.6
     # nz > 0 modes stand for themselves and their conjugates: amplitude/2 gives amplitude*cos
-    _write_checkpoint(str(tmp_path / "checkpoints" / "chk_000000010.h5"), shape, lengths,
+    _write_checkpoint(make_case, str(tmp_path / "checkpoints"), shape,
                       [("a", (1, 1, 2), A / 2), ("p", (2, 0, 1), B / 2)])
     f = run_fields(str(tmp_path))
     x, y, z = np.meshgrid(*(np.arange(8) * 2 * math.pi / 8,) * 3, indexing="ij")
@@ -83,6 +86,16 @@ def test_slices_from_checkpoint_match_closed_form(tmp_path):
     assert f["t"] == 3.5 and f["lengths"] == lengths
     assert np.abs(f["u"] - u).max() < 1e-12 and np.abs(f["w"] - w).max() < 1e-12
     assert_png(plots.plot_slices(f, lengths, str(tmp_path / "slices.png"), title="modes"))
+
+
+def test_damaged_checkpoint_is_refused_by_its_checksums(make_case, tmp_path):
+    from shearmix.solver.files.checkpoint import CheckpointError
+    path = _write_checkpoint(make_case, str(tmp_path / "checkpoints"), (8, 8, 8),
+                             [("a", (1, 1, 2), 0.4)])
+    with h5py.File(path, "r+") as fh:
+        fh["state/a"][1, 1, 2, 0] = 0.5  # a flipped value, header and mark intact
+    with pytest.raises(CheckpointError, match="checksum mismatch in state/a at ky column 1"):
+        run_fields(str(tmp_path))
 
 
 def test_no_fields_is_one_clear_error(tmp_path):

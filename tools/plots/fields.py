@@ -4,10 +4,10 @@ Snapshots (``<run>/snapshots/snap_<step>.h5``, solver/files/snapshots.py) hold t
 physical fields as ``(nz, ny, nx)`` arrays, possibly strided; they are read
 as they are and transposed to the engine's ``(x, y, z)`` order.
 
-Checkpoints (``<run>/checkpoints/chk_<step>.h5``, solver/files/checkpoint.py) hold
-the Craya-Herring amplitudes ``a``, ``p`` as ``state/<f>`` float64 arrays
-``(Nx, Ny, Nz/2+1, 2)`` (real, imaginary) of normalised coefficients,
-``f(x) = sum_k f_k exp(i k.x)``. The Cartesian components follow from
+Checkpoints (``<run>/checkpoints/chk_<step>.h5``) are read with the solver's own
+reader (:func:`shearmix.solver.files.checkpoint.read_fields`, which checks every
+column's checksum): the Craya-Herring amplitudes ``a``, ``p`` as normalised
+coefficients, ``f(x) = sum_k f_k exp(i k.x)``. The Cartesian components follow from
 :meth:`shearmix.solver.physics.basis.CrayaHerring.to_cartesian` on a one-rank grid, and the
 physical field is ``N * irfftn(f_k)`` (numpy's inverse carries ``1/N``).
 Only complete files (root attribute ``complete == 1``) are used.
@@ -60,16 +60,21 @@ def fields_from_snapshot(path):
 
 
 def fields_from_checkpoint(path):
-    """As :func:`fields_from_snapshot`, from a checkpoint's spectral state."""
+    """As :func:`fields_from_snapshot`, from a checkpoint's spectral state.
+
+    Raises :class:`shearmix.solver.files.checkpoint.CheckpointError` (one line) for a
+    damaged or incomplete file.
+    """
+    from shearmix.solver.files.checkpoint import read_checkpoint_header, read_fields
     from shearmix.solver.grid import Grid
     from shearmix.solver.physics.basis import CrayaHerring
-    with h5py.File(path, "r") as fh:
-        shape = tuple(int(n) for n in fh.attrs["grid"])
-        lengths = tuple(float(x) for x in fh.attrs["lengths"])
-        t = float(fh.attrs["t"])
-        a = fh["state/a"][()].view(np.complex128)[..., 0]
-        p = fh["state/p"][()].view(np.complex128)[..., 0]
+    header = read_checkpoint_header(path)
+    shape = tuple(int(n) for n in header["grid"])
+    lengths = tuple(float(x) for x in header["lengths"])
+    t = float(header["t"])
     grid = Grid(shape, lengths)
+    data = read_fields(path, header, grid, ["a", "p"])
+    a, p = data["a"], data["p"]
     basis = CrayaHerring(grid)
     n = grid.npoints
     out = {}
