@@ -8,8 +8,16 @@ Phys. Fluids 17, 859) the unit vectors
 
 span the plane normal to ``k``, so ``u_k = a e1 + p e2`` is divergence free by
 construction and the pressure never appears. The vertical velocity is
-``w_k = -(kh/|k|) p``. Where ``kh = 0`` the frame is taken as ``e1 = e_x``,
-``e2 = e_y`` (both normal to ``k = kz e_z``); the mean (``k = 0``) is held at 0.
+``w_k = -(kh/|k|) p``.
+
+Convention where the formulas break down, used everywhere (this module, the
+compiled kernels' ``_frame``, the initial states, the diagnostics):
+
+* ``kh = 0``, ``k != 0``: ``s = 1``, ``c = 0``, so ``e1 = e_x`` and
+  ``e2 = beta e_y`` with ``beta = kz/|k| = sign(kz)`` (``e_y`` on the stored
+  half spectrum, ``kz > 0``);
+* ``k = 0``: ``alpha = beta = 0`` (``e2 = 0``); the mean mode carries no
+  velocity, and its amplitudes are held at zero (:attr:`CrayaHerring.nonzero`).
 
 With ``s = ky/kh``, ``c = kx/kh`` (functions of kx, ky only), ``beta = kz/|k|``
 and ``alpha = kh/|k|``:
@@ -24,6 +32,33 @@ import numpy as np
 from shearmix.solver.grid import Grid
 
 
+def frame(kx, ky, kz):
+    """``(s, c, alpha, beta)`` of the wavevectors ``(kx, ky, kz)`` (NumPy broadcasting),
+    with the convention of the module docstring at ``kh = 0`` and ``k = 0``."""
+    kh = np.sqrt(kx ** 2 + ky ** 2)
+    flat = kh == 0
+    safe = np.where(flat, 1.0, kh)
+    s = np.where(flat, 1.0, ky / safe)
+    c = np.where(flat, 0.0, kx / safe)
+    alpha, beta = _alpha_beta(kh, kz)
+    return s, c, alpha, beta
+
+
+def _alpha_beta(kh, kz):
+    k = np.sqrt(kh ** 2 + kz ** 2)
+    zero = k == 0
+    safe = np.where(zero, 1.0, k)
+    return np.where(zero, 0.0, kh / safe), np.where(zero, 0.0, kz / safe)
+
+
+def vectors(kx, ky, kz):
+    """``(e1, e2)``, each a length-3 array (last axis x, y, z), of the frame at ``k``."""
+    s, c, alpha, beta = frame(kx, ky, kz)
+    zero = np.zeros_like(np.asarray(alpha, dtype=float))
+    return (np.stack(np.broadcast_arrays(s, -c, zero), axis=-1),
+            np.stack(np.broadcast_arrays(c * beta, s * beta, -alpha), axis=-1))
+
+
 class CrayaHerring:
     """Frame coefficients on one rank's spectral slab.
 
@@ -34,25 +69,21 @@ class CrayaHerring:
 
     def __init__(self, grid: Grid):
         kx, ky = grid.kx, grid.ky
-        kh_2d = np.sqrt(kx ** 2 + ky ** 2)  # shape (Nx, nyl, 1)
-        flat = kh_2d == 0
-        safe = np.where(flat, 1.0, kh_2d)
-        self.s = np.ascontiguousarray(np.where(flat, 1.0, ky / safe))
-        self.c = np.ascontiguousarray(np.where(flat, 0.0, kx / safe))
-        self.kh = np.ascontiguousarray(kh_2d)
+        s, c, _, _ = frame(kx, ky, 0.0)  # shape (Nx, nyl, 1)
+        self.s = np.ascontiguousarray(s)
+        self.c = np.ascontiguousarray(c)
+        self.kh = np.ascontiguousarray(np.sqrt(kx ** 2 + ky ** 2))
         self.kz = np.ascontiguousarray(grid.kz.ravel())
 
     @property
     def alpha(self) -> np.ndarray:
         """``kh/|k|`` (0 at k = 0)."""
-        k = np.sqrt(self.kh ** 2 + self.kz ** 2)
-        return np.where(k == 0, 0.0, self.kh / np.where(k == 0, 1.0, k))
+        return _alpha_beta(self.kh, self.kz)[0]
 
     @property
     def beta(self) -> np.ndarray:
-        """``kz/|k|`` (1 at k = 0)."""
-        k = np.sqrt(self.kh ** 2 + self.kz ** 2)
-        return np.where(k == 0, 1.0, self.kz / np.where(k == 0, 1.0, k))
+        """``kz/|k|`` (0 at k = 0)."""
+        return _alpha_beta(self.kh, self.kz)[1]
 
     @property
     def nonzero(self) -> np.ndarray:

@@ -29,6 +29,7 @@ from shearmix.solver.files.slabfile import WriteFailed
 from shearmix.solver.grid import Grid
 from shearmix.solver.physics import diagnostics as diag
 from shearmix.solver.physics.basis import CrayaHerring
+from shearmix.solver.physics.basis import vectors as frame_vectors
 from shearmix.solver.physics.initial import apply_initial
 from shearmix.solver.physics.models import Model, model_for
 from shearmix.solver.physics.tendency import PseudoSpectralTendency
@@ -196,20 +197,13 @@ class Simulation:
         x, y, z = g.physical_coordinates()
         k = np.array([2 * np.pi / L * n for L, n in zip(g.lengths, (nx, ny, nz))])
         phase = np.cos(k[0] * x + k[1] * y + k[2] * z) * np.ones(g.physical_shape)
-        kh = math.hypot(k[0], k[1])
-        kk = math.sqrt(kh ** 2 + k[2] ** 2)
         u0, v0, w0, T0 = self.physical()
         if component == "T":
             if T0 is None:
                 raise ValueError("component T needs the boussinesq model")
             T0 = T0 + amplitude * phase
         else:
-            if kh == 0:
-                e = (1.0, 0.0, 0.0) if component == "vortical" else (0.0, 1.0, 0.0)
-            elif component == "vortical":
-                e = (k[1] / kh, -k[0] / kh, 0.0)
-            else:
-                e = (k[0] * k[2] / (kh * kk), k[1] * k[2] / (kh * kk), -kh / kk)
+            e = frame_vectors(*k)[0 if component == "vortical" else 1]
             u0 = u0 + amplitude * e[0] * phase
             v0 = v0 + amplitude * e[1] * phase
             w0 = w0 + amplitude * e[2] * phase
