@@ -557,8 +557,41 @@ _stage_scalar_nb = _jit(_stage_scalar_loop)
 _stage_pair_nb = _jit(_stage_pair_loop)
 
 
+def solve_pair(m11, m12, m21, m22, y1, y2) -> None:
+    """In place, per mode: ``(y1, y2) <- M^{-1} (y1, y2)`` for ``M = [[m11, m12], [m21, m22]]``
+    by Cramer's rule (the NumPy definition; the compiled twin is the solve inside
+    ``_stage_pair_loop``, which multiplies by ``1/det``)."""
+    det = m11 * m22 - m12 * m21
+    y1_old = y1.copy()
+    y1 *= m22
+    y1 -= m12 * y2
+    y1 /= det
+    y2 *= m11
+    y2 -= m21 * y1_old
+    y2 /= det
+
+
+def stage_update_numpy(operator, x, y, z, hb, hex_, him, haii, last):
+    """The NumPy definition of :func:`stage_update` for any operator with ``apply`` and
+    ``solve``: ``Ly = L y``, ``x += hb z``, ``x += hb Ly``, then unless ``last``
+    ``y <- (I - haii L)^{-1} (x + hex z + him Ly)`` (the compiled twin adds
+    ``hb (z + Ly)`` in one go: equal to round-off)."""
+    operator.apply(y)  # y <- L Y_i
+    if hb:
+        x += hb * z
+        x += hb * y
+    if last:
+        return
+    y *= him
+    y += x
+    y += hex_ * z
+    operator.solve(y, haii)
+
+
 def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
-    """One fused stage of :class:`shearmix.solver.run.imex.LowStorageIMEX` for a block operator.
+    """One stage of :class:`shearmix.solver.run.imex.LowStorageIMEX`: compiled (fused, in
+    one pass) for a block operator when the compiled kernels run, else
+    :func:`stage_update_numpy`.
 
     With ``Ly = L y``: ``x += hb (z + Ly)``; unless ``last``,
     ``y <- (I - haii L)^{-1} (x + hex z + him Ly)``. The coefficients are the
@@ -569,6 +602,9 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
     are zero (the simulation keeps them so), and zero stays zero under this
     update, so the result equals the update of every mode.
     """
+    if not (use_numba() and hasattr(operator, "flat_entry")):
+        stage_update_numpy(operator, x, y, z, hb, hex_, him, haii, last)
+        return
     g = operator.grid
     band = (g.keep_x, g.keep_y, g.nz_kept)
     shape = x.shape[1:]

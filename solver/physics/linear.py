@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from shearmix.solver.compute import kernels
+
 
 def evaluate(rows, k2: np.ndarray, alpha: np.ndarray) -> np.ndarray:
     """``sum c |k|^(2m) alpha^n`` over rows ``(c, m, n)``; negative ``m`` gives 0 at k = 0."""
@@ -117,12 +119,5 @@ class LinearOperator:
                 m_jj = 1.0 - h * self.entry(j, j)
                 m_ij = -h * self.entry(i, j)
                 m_ji = -h * self.entry(j, i)
-                det = m_ii * m_jj - m_ij * m_ji
-                yi = y[i].copy()
-                y[i] *= m_jj
-                y[i] -= m_ij * y[j]
-                y[i] /= det
-                y[j] *= m_ii
-                y[j] -= m_ji * yi
-                y[j] /= det
+                kernels.solve_pair(m_ii, m_ij, m_ji, m_jj, y[i], y[j])
         return y

@@ -190,20 +190,8 @@ class LowStorageIMEX:
             last = i == s - 1
             nxt = i if last else i + 1
             hex_, him = h * (tab.A_ex[nxt, i] - bi), h * (tab.A_im[nxt, i] - bi)
-            if fused:
-                kernels.stage_update(self.operator, x, y, z, h * bi, hex_, him,
-                                     h * tab.A_im[nxt, nxt], last)
-                continue
-            self.operator.apply(y)  # y <- L Y_i
-            if bi:
-                x += (h * bi) * z
-                x += (h * bi) * y
-            if last:
-                break
-            y *= him
-            y += x
-            y += hex_ * z
-            self.operator.solve(y, h * tab.A_im[nxt, nxt])
+            kernels.stage_update(self.operator, x, y, z, h * bi, hex_, him,
+                                 h * tab.A_im[nxt, nxt], last)
         return x
 
 
