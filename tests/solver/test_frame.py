@@ -70,3 +70,20 @@ def test_add_mode_is_the_frame_vector_times_the_cosine(make_case, component, n):
     phase = np.cos(k[0] * x + k[1] * y + k[2] * z)
     for comp, field in zip(e, sim.physical()[:3]):
         assert np.abs(field - 0.5 * comp * phase).max() < 1e-14
+
+
+def test_stability_basis_is_the_solver_frame():
+    """The linear-stability harmonics use the same frame; a computed q_n a rounding
+    error from 0 (here -0.3 + 3 x 0.1) counts as a vertical wavevector."""
+    from shearmix.tools.stability.operators import craya_basis
+    q = np.array([-1.0, -0.3 + 0.1 + 0.1 + 0.1, 0.0, 0.5, 2.0])
+    assert q[1] != 0  # the premise: rounding left a tiny horizontal part
+    for kx, kz in ((0.0, 0.8), (0.7, -1.1), (0.0, -0.6)):
+        E, k2 = craya_basis(kx, q, kz)
+        for i, qi in enumerate(q):
+            kk = (kx, 0.0 if i == 1 and kx == 0 else qi, kz)
+            e1, e2 = vectors(*kk)
+            assert np.allclose(E[i, :, 0], e1, rtol=0, atol=1e-15)
+            assert np.allclose(E[i, :, 1], e2, rtol=0, atol=1e-15)
+    E, _ = craya_basis(0.0, np.array([0.0, 1.0]), 0.0)
+    assert np.array_equal(E[0], np.zeros((3, 2)))  # the k = 0 harmonic is left out

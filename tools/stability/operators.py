@@ -21,7 +21,8 @@ The velocity of each harmonic is written in the Craya-Herring basis
 ``e1 = k x e_z / |k x e_z|`` (vortical, horizontal) and ``e2 = k x e1 / |k|``
 (poloidal, carries ``w``).  Both are orthogonal to ``k``, so every mode is
 divergence free and projecting on ``(e1, e2)`` eliminates the pressure exactly.
-When ``k_n`` is vertical (``kx = q_n = 0``) the basis is ``(e_x, e_y)``; the
+When ``k_n`` is vertical (``kx = q_n = 0``) the basis is ``(e_x, sign(kz) e_y)``
+(the solver's convention, :mod:`shearmix.solver.physics.basis`); the
 harmonic ``k_n = 0`` (``kx = kz = 0``, ``q_n = 0``) holds only uniform
 perturbations (a uniform flow, a uniform temperature shift balanced
 hydrostatically), neutral and uncoupled, and is left out.
@@ -38,11 +39,15 @@ import dataclasses
 import numpy as np
 import scipy.sparse as sp
 
+from shearmix.solver.physics.basis import vectors as frame_vectors
+
 from .params import FlowParams
 
 
 def craya_basis(kx: float, q: np.ndarray, kz: float):
-    """Craya-Herring basis for the wavevectors ``(kx, q_i, kz)``.
+    """Craya-Herring basis for the wavevectors ``(kx, q_i, kz)``: the solver's frame
+    (:func:`shearmix.solver.physics.basis.vectors`, with its convention where
+    ``kh = 0``), a horizontal part within rounding of zero counted as zero.
 
     Returns ``E`` of shape ``(len(q), 3, 2)`` (columns ``e1``, ``e2``) and the
     squared norms ``|k|^2``.  Rows with ``k = 0`` are all zero.
@@ -53,20 +58,13 @@ def craya_basis(kx: float, q: np.ndarray, kz: float):
     kzv = np.full(nq, float(kz))
     kh2 = kxv ** 2 + q ** 2
     k2 = kh2 + kzv ** 2
-    kh = np.sqrt(kh2)
     kk = np.sqrt(k2)
-    E = np.zeros((nq, 3, 2))
     scale = max(1.0, float(np.max(kk))) if nq else 1.0
-    gen = kh > 1e-13 * scale
-    g = np.nonzero(gen)[0]
-    E[g, 0, 0] = q[g] / kh[g]
-    E[g, 1, 0] = -kxv[g] / kh[g]
-    E[g, 0, 1] = kxv[g] * kzv[g] / (kh[g] * kk[g])
-    E[g, 1, 1] = q[g] * kzv[g] / (kh[g] * kk[g])
-    E[g, 2, 1] = -kh[g] / kk[g]
-    vert = (~gen) & (kk > 1e-13 * scale)
-    E[vert, 0, 0] = 1.0
-    E[vert, 1, 1] = 1.0
+    # q = ky0 + n kf is computed: a rounding error from 0 is a vertical wavevector
+    flat = np.sqrt(kh2) <= 1e-13 * scale
+    e1, e2 = frame_vectors(np.where(flat, 0.0, kxv), np.where(flat, 0.0, q), kzv)
+    E = np.stack([e1, e2], axis=-1) if nq else np.zeros((0, 3, 2))
+    E[kk <= 1e-13 * scale] = 0.0
     return E, k2
 
 
