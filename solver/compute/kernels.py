@@ -81,6 +81,23 @@ def _frame(kh, kz):
 _frame_nb = _jit(_frame)
 
 
+def _cartesian(s, c, al, be, a, p):
+    """``(u, v, w)`` of ``a e1 + p e2`` for real ``a``, ``p`` (one part of a complex
+    amplitude): the compiled twin of
+    :meth:`shearmix.solver.physics.basis.CrayaHerring.to_cartesian`."""
+    return s * a + c * be * p, s * be * p - c * a, -al * p
+
+
+def _projection(s, c, al, be, nx, ny, nz):
+    """``(a, p)`` of the real vector ``(nx, ny, nz)``: the compiled twin of
+    :meth:`shearmix.solver.physics.basis.CrayaHerring.project`."""
+    return s * nx - c * ny, be * (c * nx + s * ny) - al * nz
+
+
+_cartesian_nb = _jit(_cartesian)
+_projection_nb = _jit(_projection)
+
+
 # ---------------------------------------------------------------- frame -> Cartesian
 def _velocity_loop(a, p, s, c, kh, kz, keepx, keepy, nkz, u, v, w):
     # outside the dealiased band the state is zero: write zeros without reading it
@@ -97,11 +114,11 @@ def _velocity_loop(a, p, s, c, kh, kz, keepx, keepy, nkz, u, v, w):
             khij = kh[i, j, 0]
             for k in range(nkz):
                 al, be = _frame_nb(khij, kz[k])
-                ar, ai = a[i, j, k].real, a[i, j, k].imag
-                pr, pi = p[i, j, k].real, p[i, j, k].imag
-                u[i, j, k] = complex(sij * ar + cij * be * pr, sij * ai + cij * be * pi)
-                v[i, j, k] = complex(sij * be * pr - cij * ar, sij * be * pi - cij * ai)
-                w[i, j, k] = complex(-al * pr, -al * pi)
+                ur, vr, wr = _cartesian_nb(sij, cij, al, be, a[i, j, k].real, p[i, j, k].real)
+                ui, vi, wi = _cartesian_nb(sij, cij, al, be, a[i, j, k].imag, p[i, j, k].imag)
+                u[i, j, k] = complex(ur, ui)
+                v[i, j, k] = complex(vr, vi)
+                w[i, j, k] = complex(wr, wi)
             u[i, j, nkz:] = 0.0
             v[i, j, nkz:] = 0.0
             w[i, j, nkz:] = 0.0
@@ -154,9 +171,10 @@ def _momentum_loop(P0, P1, P2, P3, P4, scale, keepx, keepy, nkz, kx, ky, kz, s, 
                 nyr, nyi = syi * scale, -syr * scale
                 nzr, nzi = szi * scale, -szr * scale
                 al, be = _frame_nb(khij, kzk)
-                out[0, i, j, k] = complex(sij * nxr - cij * nyr, sij * nxi - cij * nyi)
-                out[1, i, j, k] = complex(be * (cij * nxr + sij * nyr) - al * nzr,
-                                          be * (cij * nxi + sij * nyi) - al * nzi)
+                ar, pr = _projection_nb(sij, cij, al, be, nxr, nyr, nzr)
+                ai, pi = _projection_nb(sij, cij, al, be, nxi, nyi, nzi)
+                out[0, i, j, k] = complex(ar, ai)
+                out[1, i, j, k] = complex(pr, pi)
             out[0, i, j, nkz:] = 0.0
             out[1, i, j, nkz:] = 0.0
 
@@ -371,8 +389,8 @@ def _sums_loop(a, p, T, has_T, s, c, kh, kz, sums, e_h):
                 ar, ai = a[i, j, k].real, a[i, j, k].imag
                 pr, pi = p[i, j, k].real, p[i, j, k].imag
                 al, be = _frame_nb(khij, kz[k])
-                uxr, uxi = sij * ar + cij * be * pr, sij * ai + cij * be * pi
-                uyr, uyi = sij * be * pr - cij * ar, sij * be * pi - cij * ai
+                uxr, uyr, _ = _cartesian_nb(sij, cij, al, be, ar, pr)
+                uxi, uyi, _ = _cartesian_nb(sij, cij, al, be, ai, pi)
                 ux2 = uxr * uxr + uxi * uxi
                 uy2 = uyr * uyr + uyi * uyi
                 p2 = pr * pr + pi * pi
