@@ -21,16 +21,16 @@ from shearmix.solver.run.stepview import step_view
 class Output:
     """Base class: a file (or files) a run writes on a cadence."""
 
-    def open(self, sim, out_dir: str, append: bool) -> None:
+    def open(self, view, out_dir: str, append: bool) -> None:
         self.out_dir = out_dir
 
-    def due(self, sim) -> bool:
+    def due(self, view) -> bool:
         return False
 
-    def write(self, sim) -> None:
+    def write(self, view) -> None:
         pass
 
-    def close(self, sim, reason: str) -> None:
+    def close(self, view, reason: str) -> None:
         pass
 
     def flush(self) -> None:
