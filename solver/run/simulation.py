@@ -138,8 +138,6 @@ class Simulation:
         self.adaptive = self.control.adaptive
         self.params = Parameters.from_case(case)
         self.history = [start_event(self)]  # a restart replaces it with the file's
-        self._state_view = self.state.view()
-        self._state_view.flags.writeable = False
         if initial:
             # the product buffers hold nothing between tendency evaluations:
             # lent as work arrays, so the initial state makes no full-size temporaries
@@ -184,9 +182,10 @@ class Simulation:
 
     def view(self) -> StepView:
         """The read-only view of the current step boundary that outputs receive."""
-        return StepView(t=self.t, step_count=self.step_count, dt=self.dt,
-                        state=self._state_view, max_speed=self.tendency.max_speed,
-                        history=self.history, grid=self.grid, comm=self.comm,
+        state = self.state.view()
+        state.flags.writeable = False
+        return StepView(t=self.t, step_count=self.step_count, dt=self.dt, state=state,
+                        max_speed=self.tendency.max_speed, history=self.history, grid=self.grid, comm=self.comm,
                         basis=self.basis, fields=self.fields, params=self.params,
                         forcing=self.tendency.forcing, case=self.case,
                         to_physical=self.tendency.physical_fields, inverse=self._inverse)

@@ -32,8 +32,8 @@ class TimeStepControl:
 
     @classmethod
     def from_case(cls, case) -> "TimeStepControl":
-        return cls(adaptive=bool(case.get("time.adaptive")), cfl=float(case.get("time.cfl")), dt_max=float(case.get("time.dt_max")),
-                   dt_min=float(case.get("time.dt_min")))
+        return cls(adaptive=bool(case.get("time.adaptive")), cfl=float(case.get("time.cfl")),
+                   dt_max=float(case.get("time.dt_max")), dt_min=float(case.get("time.dt_min")))
 
     def cfl_step(self, rate: float) -> float:
         """Largest step the CFL number and the ceiling allow for the rate ``r``."""

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from shearmix.solver.compute import kernels
-from shearmix.solver.physics.basis import CrayaHerring, frame, vectors
+from shearmix.solver.physics.basis import frame, vectors
 from shearmix.solver.run.simulation import Simulation
 
 WAVEVECTORS = [(1.0, 2.0, 1.0), (-3.0, 0.5, -2.0), (0.0, 1.0, 0.0), (2.0, -1.0, 0.0),
