@@ -185,7 +185,8 @@ class Simulation:
         state = self.state.view()
         state.flags.writeable = False
         return StepView(t=self.t, step_count=self.step_count, dt=self.dt, state=state,
-                        max_speed=self.tendency.max_speed, history=self.history, grid=self.grid, comm=self.comm,
+                        max_speed=self.tendency.max_speed, history=self.history,
+                        grid=self.grid, comm=self.comm,
                         basis=self.basis, fields=self.fields, params=self.params,
                         forcing=self.tendency.forcing, case=self.case,
                         to_physical=self.tendency.physical_fields, inverse=self._inverse)
