@@ -24,7 +24,6 @@ from shearmix.solver.case import Case
 from shearmix.solver.compute import kernels
 from shearmix.solver.compute.parallel import world
 from shearmix.solver.compute.transforms import SlabTransform, load_wisdom, save_wisdom
-from shearmix.solver.files.fileheader import start_event
 from shearmix.solver.files.slabfile import WriteFailed
 from shearmix.solver.grid import Grid
 from shearmix.solver.physics import diagnostics as diag
@@ -37,7 +36,7 @@ from shearmix.solver.run import rundir
 from shearmix.solver.run.imex import TABLEAUX, make_stepper
 from shearmix.solver.run.outputs import TimeSeriesOutput
 from shearmix.solver.run.stopsignals import StopRequests, signal_name
-from shearmix.solver.run.stepview import Parameters, StepView
+from shearmix.solver.run.stepview import Parameters, StepView, step_view
 from shearmix.solver.run.timestep import TimeStepControl
 
 EXIT_FINISHED, EXIT_BAD_INPUT, EXIT_BLOWUP, EXIT_STOPPED_EARLY = 0, 2, 3, 4
@@ -137,7 +136,8 @@ class Simulation:
         self.limits = RunLimits.from_case(case)
         self.adaptive = self.control.adaptive
         self.params = Parameters.from_case(case)
-        self.history = [start_event(self)]  # a restart replaces it with the file's
+        # set by a restart, else by the run folder's start (rundir.start) or step_view
+        self.history = None
         if initial:
             # the product buffers hold nothing between tendency evaluations:
             # lent as work arrays, so the initial state makes no full-size temporaries
@@ -301,7 +301,7 @@ class Simulation:
             say(f"shearmix: error: {exc}")
             return EXIT_BAD_INPUT
         opened = []
-        view = self.view()
+        view = step_view(self)  # starts the history of a continued run that has none
         try:
             for out in self.outputs:
                 out.open(view, out_dir, append)

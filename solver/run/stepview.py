@@ -13,6 +13,8 @@ from typing import Any, Callable
 
 import numpy as np
 
+from shearmix.solver.files.fileheader import history_of
+
 
 @dataclass(frozen=True)
 class Parameters:
@@ -38,7 +40,8 @@ class StepView:
     state: np.ndarray
     #: max |u| from the last tendency evaluation that measured it
     max_speed: float
-    history: list
+    #: the run's history (None outside a run until a file is written)
+    history: list | None
     grid: Any
     comm: Any
     basis: Any
@@ -59,5 +62,9 @@ class StepView:
 
 
 def step_view(source) -> StepView:
-    """``source`` if it is a view, else ``source.view()`` (a simulation)."""
-    return source if isinstance(source, StepView) else source.view()
+    """``source`` if it is a view, else ``source.view()`` of a simulation, whose history
+    starts here if nothing started it (a file written outside a run)."""
+    if isinstance(source, StepView):
+        return source
+    history_of(source)
+    return source.view()
