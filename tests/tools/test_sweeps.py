@@ -343,3 +343,21 @@ def test_batch_template_missing_is_a_one_line_error(tmp_path, monkeypatch):
     with pytest.raises(batch.BatchError, match=r"none\.sh\.in: cannot read the pbs template.*"
                                                r"source tree"):
         batch.write_batch_scripts(sw, "pbs")
+
+def test_duplicate_key_and_quoted_number_in_sweep_file(tmp_path):
+    # YAML 1.2 section 3.2.1.1: mapping keys are unique
+    p = tmp_path / "dup.yaml"
+    p.write_text("sweep: s\nbase_case: {model: lowpe}\nvary:\n  parameters.Re: [20]\n"
+                 "  parameters.Re: [30]\n")
+    with pytest.raises(SweepError, match=r"line 5: duplicate key 'parameters.Re' "
+                                         r"\(first given at line 4\)"):
+        load_sweep(str(p))
+    base = dict(TINY_BASE, parameters={"Re": "40", "BPe": 1, "Pe": 0.1})
+    p = _write(tmp_path, {"sweep": "q", "base_case": base, "vary": {"parameters.BPe": [1]}})
+    with pytest.raises(SweepError, match=r"parameters.Re: must be a number > 0, got the string"):
+        load_sweep(str(p))
+    p = _write(tmp_path, {"sweep": "q", "base_case": TINY_BASE,
+                          "vary": {"parameters.BPe": {"from": "1", "to": 2, "count": 2}}})
+    with pytest.raises(SweepError, match=r"vary.parameters.BPe.from: must be a finite number, "
+                                         r"got the string '1'"):
+        load_sweep(str(p))
