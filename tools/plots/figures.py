@@ -286,6 +286,7 @@ def plot_scaling(rows, fits, path, quantities=("Lz_turb", "w_rms", "D_flux", "D_
             ax.legend(fontsize=7)
         ax.set_xscale("log")
         ax.set_yscale("log")
+        _log_ticks(ax, "y")
         ax.set_xlabel("BPe")
         ax.set_ylabel(QUANTITY_LABELS.get(q, q))
     fig.suptitle(f"steady-state averages against BPe (error bars: one standard error)\n"
