@@ -15,6 +15,7 @@ import difflib
 import math
 import operator
 import os
+import re
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -26,6 +27,9 @@ MODELS = ("boussinesq", "lowpe")
 INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")
 MODE_COMPONENTS = ("vortical", "poloidal", "T")
 FFTW_EFFORTS = ("estimate", "measure", "patient")
+#: forcing conventions by name; the older spellings are still read
+AMPLITUDE_NAMES = {"laminar": "laminar", "unit": "unit",
+                   "unit-laminar": "laminar", "unit-forcing": "unit"}
 
 
 class CaseError(ValueError):
@@ -161,7 +165,6 @@ def parse_length(text: Any) -> float:
         raise ValueError("not a length")
     src = text.strip().lower().replace("π", "pi")
     # '4pi' and '4 pi' are how people write it by hand
-    import re
     src = re.sub(r"(\d)\s*(pi)", r"\1*\2", src)
 
     def ev(node):
@@ -184,12 +187,77 @@ def parse_length(text: Any) -> float:
         raise ValueError("not a length") from exc
 
 
+# ---------------------------------------------------------------- YAML
+class Lined(dict):
+    """A YAML mapping that remembers the line of each key (``lines``) and its file."""
+
+    lines: dict
+    origin: str
+
+
+# YAML 1.1 reads 1e6 (no dot) as a string; a plain (unquoted) scalar written as a
+# number is a number here, while a quoted one stays a string (common practice, no source)
+_FLOAT = re.compile(r"^[-+]?(\d[\d_]*\.?\d*|\.\d+)([eE][-+]?\d+)$")
+
+
+class _Loader(yaml.SafeLoader):
+    """Safe YAML loading that refuses duplicate keys and keeps each key's line."""
+
+    origin = "<case>"
+
+    def construct_mapping(self, node, deep=False):
+        self.flatten_mapping(node)
+        out = Lined()
+        out.lines, out.origin = {}, self.origin
+        for key_node, value_node in node.value:
+            key = self.construct_object(key_node, deep=deep)
+            try:
+                hash(key)
+            except TypeError:
+                raise CaseError(f"{self.origin}: line {key_node.start_mark.line + 1}: "
+                                f"key {key!r} is not a name") from None
+            if key in out:
+                raise CaseError(f"{self.origin}: line {key_node.start_mark.line + 1}: "
+                                f"duplicate key {key!r} (first given at line "
+                                f"{out.lines[key]}); give each key once")
+            out[key] = self.construct_object(value_node, deep=deep)
+            out.lines[key] = key_node.start_mark.line + 1
+        return out
+
+
+_Loader.add_implicit_resolver("tag:yaml.org,2002:float", _FLOAT, list("-+0123456789."))
+_Loader.add_constructor("tag:yaml.org,2002:map", _Loader.construct_mapping)
+
+
+def load_yaml(text: str, source: str = "<case>"):
+    """Parse YAML text; duplicate keys and syntax errors raise :class:`CaseError` with the line."""
+    loader = _Loader(text)
+    loader.origin = source
+    try:
+        return loader.get_single_data()
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+        problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
+        raise CaseError(f"{source}: not valid YAML{where}: {problem}") from None
+    finally:
+        loader.dispose()
+
+
+def _where(node, key, source: str = "") -> str:
+    """'line N: ', or 'line N of FILE: ' when read from another file than ``source``."""
+    line = getattr(node, "lines", {}).get(key)
+    if line is None:
+        return ""
+    return f"line {line}: " if node.origin == source else f"line {line} of {node.origin}: "
+
+
 # ---------------------------------------------------------------- the case
 @dataclass
 class Case:
     """A validated case: the nested mapping with defaults filled, plus derived numbers.
 
-    Parameters follow DESIGN.md section 2. ``F0`` defaults to ``kf^2/Re``
+    Parameters follow docs/equations.md. ``F0`` defaults to ``kf^2/Re``
     (laminar amplitude 1); the laminar amplitude is ``U_L = F0 Re / kf^2``.
     """
 
@@ -262,12 +330,13 @@ class Case:
 
     @property
     def convention(self) -> str:
+        """The forcing convention, named by its ``forcing.amplitude`` keyword, and what it means."""
         amp = self.get("forcing.amplitude")
         if amp == "laminar":
-            return "unit-laminar (F0 = kf^2/Re, laminar amplitude 1)"
+            return "laminar (F0 = kf^2/Re, laminar amplitude 1)"
         if amp == "unit":
-            return f"unit-forcing (F0 = 1, laminar amplitude Re/kf^2 = {self.U_L:g})"
-        return f"custom (F0 = {self.F0:g}, laminar amplitude {self.U_L:g})"
+            return f"unit (F0 = 1, laminar amplitude Re/kf^2 = {self.U_L:g})"
+        return f"F0 = {self.F0:g} (laminar amplitude F0 Re/kf^2 = {self.U_L:g})"
 
     # geometry
     @property
@@ -318,15 +387,10 @@ def load_case(path: str, overrides: list[str] | dict | None = None) -> Case:
 def case_from_text(text: str, source: str = "<case>",
                    overrides: list[str] | dict | None = None) -> Case:
     """Parse YAML text into a validated :class:`Case`."""
-    try:
-        data = yaml.safe_load(text)
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
-        problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
-        raise CaseError(f"{source}: not valid YAML{where}: {problem}") from None
+    data = load_yaml(text, source)
     if data is None:
-        data = {}
+        raise CaseError(f"{source}: empty file; a case needs at least model, parameters.Re "
+                        "and a stop condition (see 'shearmix keys')")
     if not isinstance(data, dict):
         raise CaseError(f"{source}: a case file must be a mapping of keys, "
                         f"got {type(data).__name__}")
@@ -349,8 +413,8 @@ def _apply_overrides(data: dict, assignments, source: str) -> None:
                 raise CaseError(f"--set {a!r}: expected key=value, e.g. parameters.Re=200")
             key, value = a.split("=", 1)
             try:
-                parsed.append((key.strip(), yaml.safe_load(value)))
-            except yaml.YAMLError:
+                parsed.append((key.strip(), load_yaml(value, f"--set {key.strip()}")))
+            except CaseError:
                 parsed.append((key.strip(), value))
         items = parsed
     for key, value in items:
@@ -379,33 +443,38 @@ def _suggest(key: str) -> str:
     return f" (did you mean {near[0]}?)" if near else ""
 
 
-def _flatten(data: dict, prefix: str, out: dict, source: str) -> None:
+def _flatten(data: dict, prefix: str, out: dict, source: str, where: dict) -> None:
     for k, v in data.items():
         if not isinstance(k, str):
-            raise CaseError(f"{source}: key {k!r} is not a name")
+            raise CaseError(f"{source}: {_where(data, k, source)}key {k!r} is not a name")
         dotted = f"{prefix}{k}"
         if isinstance(v, dict) and dotted not in SCHEMA:
             if not any(s.startswith(dotted + ".") for s in SCHEMA):
-                raise CaseError(f"{source}: unknown key {dotted}{_suggest(dotted)}")
-            _flatten(v, dotted + ".", out, source)
+                raise CaseError(f"{source}: {_where(data, k, source)}unknown key {dotted}"
+                                f"{_suggest(dotted)}")
+            _flatten(v, dotted + ".", out, source, where)
         else:
             if dotted not in SCHEMA:
-                raise CaseError(f"{source}: unknown key {dotted}{_suggest(dotted)}")
+                raise CaseError(f"{source}: {_where(data, k, source)}unknown key {dotted}"
+                                f"{_suggest(dotted)}")
             out[dotted] = v
+            where[dotted] = _where(data, k, source)
 
 
-def _check_value(key: str, spec: Key, value: Any, source: str):
-    bad = CaseError(f"{source}: {key}: must be {spec.allowed()}, got {value!r}")
+def _check_value(key: str, spec: Key, value: Any, source: str, where: str = ""):
+    bad = CaseError(f"{source}: {where}{key}: must be {spec.allowed()}, got {value!r}")
     if value is None:
         return None
     kind = spec.kind
     if kind in ("float", "int", "amplitude") and isinstance(value, str):
-        # YAML 1.1 reads 1e6 (no dot) as a string; people write it anyway
         try:
-            number = float(value)
-            value = int(number) if kind == "int" and number.is_integer() else number
+            float(value)
         except ValueError:
             pass
+        else:
+            # a number in quotes is a string: a slip that would otherwise pass unseen
+            raise CaseError(f"{source}: {where}{key}: must be {spec.allowed()}, got the "
+                            f"string {value!r}; write the number without quotes")
     if kind == "bool":
         if not isinstance(value, bool):
             raise bad
@@ -418,11 +487,11 @@ def _check_value(key: str, spec: Key, value: Any, source: str):
         if value not in spec.choices:
             near = difflib.get_close_matches(str(value), spec.choices, n=1)
             hint = f" (did you mean {near[0]}?)" if near else ""
-            raise CaseError(f"{source}: {key}: must be {spec.allowed()}, got {value!r}{hint}")
+            raise CaseError(f"{source}: {where}{key}: must be {spec.allowed()}, got {value!r}{hint}")
         return value
     if kind == "amplitude":
-        if value in ("laminar", "unit"):
-            return value
+        if value in AMPLITUDE_NAMES:
+            return AMPLITUDE_NAMES[value]
         if isinstance(value, bool) or not isinstance(value, (int, float)) or value < 0 \
                 or not math.isfinite(value):
             raise bad
@@ -458,10 +527,11 @@ def _check_value(key: str, spec: Key, value: Any, source: str):
 def validate(data: dict, source: str = "<case>") -> Case:
     """Check every key, fill defaults and check the model's parameters."""
     flat: dict[str, Any] = {}
-    _flatten(data, "", flat, source)
+    where: dict[str, str] = {}
+    _flatten(data, "", flat, source, where)
     values = {}
     for key, spec in SCHEMA.items():
-        v = _check_value(key, spec, flat.get(key), source)
+        v = _check_value(key, spec, flat.get(key), source, where.get(key, ""))
         values[key] = spec.default if v is None else v
     if values["model"] is None:
         raise CaseError(f"{source}: model: missing; must be one of {', '.join(MODELS)}")

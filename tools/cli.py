@@ -10,7 +10,8 @@ Under MPI: ``mpirun -n P shearmix run CASE.yaml``. Exit codes: 0 done, 1 an
 unexpected failure, 2 bad input (nothing written), 3 blow-up, 4 stopped early
 on the wall-clock budget or SIGTERM/SIGUSR1 with a checkpoint written (restart
 it), 5 a checkpoint or snapshot could not be written (the last complete one is
-kept). See docs/checkpoints.md.
+kept), 141 the reader of the output went away (``shearmix keys | head``). See
+docs/checkpoints.md.
 """
 from __future__ import annotations
 
@@ -28,6 +29,11 @@ _PLUGINS = ("shearmix.tools.stability.cli", "shearmix.tools.analysis.cli", "shea
 def _fail(message: str, code: int = EXIT_BAD_INPUT) -> int:
     print(f"shearmix: error: {message}", file=sys.stderr)
     return code
+
+
+def _shown(value) -> str:
+    """A case value as a user wrote it; an unset one as ``unset``, not Python's ``None``."""
+    return "unset" if value is None else repr(value)
 
 
 def _load(args):
@@ -221,7 +227,8 @@ def cmd_run(args) -> int:
                 print(f"shearmix: warning: passed over {why}", file=sys.stderr)
             for note in notes + warnings:
                 print(f"shearmix: warning: {note}", file=sys.stderr)
-            changed = ", ".join(f"{k} {a!r} -> {b!r}" for k, (a, b) in checked["changes"].items())
+            changed = ", ".join(f"{k} {_shown(a)} -> {_shown(b)}"
+                                for k, (a, b) in checked["changes"].items())
             print(f"shearmix: restarting from {path} at step {sim.step_count}, t = {sim.t:.10g}"
                   + (f"; changed: {changed}" if changed else ""), flush=True)
         comm.barrier()
@@ -293,12 +300,26 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+#: exit code when the reader of our output went away (``| head``): 128 + SIGPIPE, as a
+#: shell reports a program that signal ended (common practice, no source)
+EXIT_PIPE_CLOSED = 141
+
+
 def main(argv=None) -> int:
     from shearmix.solver.compute.parallel import ending_every_rank
     parser = build_parser()
     args = parser.parse_args(argv)
-    with ending_every_rank():
-        return int(args.func(args) or 0)
+    try:
+        with ending_every_rank():  # on several ranks a closed pipe ends them all there
+            code = int(args.func(args) or 0)
+            sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        return code
+    except BrokenPipeError:
+        # stop quietly; point stdout at /dev/null so the exit-time flush cannot fail again
+        # (the recipe of the Python documentation, signal module, "Note on SIGPIPE")
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_PIPE_CLOSED
 
 
 if __name__ == "__main__":

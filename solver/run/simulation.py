@@ -339,7 +339,7 @@ class Simulation:
                 fresh = series is not None and series.last_step == self.step_count
                 if fresh and not math.isfinite(series.last["K"]):
                     raise BlowUp(self._blowup_message("the kinetic energy is not finite"))
-                if (self.step_count - start_step) % progress == 0:
+                if self.step_count % progress == 0:  # same steps whether or not restarted
                     now = time.monotonic()
                     rate = (self.step_count - last_report[1]) / max(now - last_report[0], 1e-9)
                     last_report = (now, self.step_count)

@@ -27,7 +27,7 @@ def test_good_case_and_defaults():
     assert c.Re == 100 and c.BPe == 2 and c.Pe is None and c.B is None
     assert c.lengths == pytest.approx((4 * math.pi, 2 * math.pi, 2 * math.pi))
     assert c.F0 == pytest.approx(1 / 100) and c.U_L == pytest.approx(1.0)
-    assert "unit-laminar" in c.convention
+    assert c.convention.startswith("laminar")
     assert c.output_directory.endswith("t")
 
 
@@ -97,3 +97,50 @@ def test_box_too_short_warns():
     c = case_from_text(GOOD, overrides=["box.Lx=2*pi"])
     assert any("cannot go unstable" in w for w in c.warnings)
     assert not case_from_text(GOOD).warnings
+
+
+# ------------------------------------------------------------ refused inputs (issue 14 item 7)
+BLOCK = """name: t
+model: lowpe
+parameters:
+  Re: 20
+  BPe: 2
+  Re: 30
+grid: {Nx: 32, Ny: 16, Nz: 16}
+time: {t_end: 5}
+"""
+
+
+def test_duplicate_key_names_key_and_both_lines():
+    # YAML 1.2 section 3.2.1.1: the keys of a mapping are unique (PyYAML lets the last win)
+    msg = _err(BLOCK)
+    assert "line 6" in msg and "duplicate key 'Re'" in msg and "first given at line 4" in msg
+    msg = _err(GOOD + "parameters: {Re: 3, BPe: 1}\n")  # GOOD starts with an empty line
+    assert "line 7: duplicate key 'parameters' (first given at line 4)" in msg
+
+
+def test_quoted_number_is_refused_with_its_line():
+    msg = _err(BLOCK.replace("  Re: 30\n", "").replace("Re: 20", 'Re: "20"'))
+    assert "line 4: parameters.Re: must be a number > 0" in msg and "'20'" in msg
+    assert "quotes" in msg
+    assert "grid.Nx" in _err(GOOD.replace("Nx: 32", "Nx: '32'"))
+    assert "time.t_end" in _err(GOOD, ["time.t_end='5'"])
+
+
+def test_unquoted_numbers_and_expressions_still_read():
+    # '1e6' without a dot is a string in YAML 1.1 but a float in YAML 1.2 (section 10.2.1.4)
+    c = case_from_text(GOOD.replace("Re: 100", "Re: 1e6") + "box: {Lx: 4*pi, Ly: '2*pi'}\n")
+    assert c.Re == 1e6 and c.Lx == pytest.approx(4 * math.pi) and c.Ly == pytest.approx(2 * math.pi)
+    assert case_from_text(GOOD, overrides=["parameters.Re=2e3"]).Re == 2000.0
+
+
+def test_empty_file_says_so(tmp_path):
+    for text in ("", "# only a comment\n"):
+        msg = _err(text)
+        assert msg.startswith("case.yaml: empty file")
+
+
+def test_convention_has_one_name_and_old_spellings_still_read():
+    for old, new in (("unit-laminar", "laminar"), ("unit-forcing", "unit")):
+        c = case_from_text(GOOD + f"forcing: {{amplitude: {old}}}\n")
+        assert c.get("forcing.amplitude") == new and c.convention.startswith(new + " (")

@@ -37,7 +37,7 @@ def test_run_writes_series_with_case_and_version(cli_process, case_file, tmp_pat
     with h5py.File(tmp_path / "out" / "timeseries.h5") as fh:
         assert list(fh["step"][()]) == [0, 3, 6, 9, 12]
         assert "BPe: 2" in fh.attrs["case"] and fh.attrs["version"]
-        assert "unit-laminar" in fh.attrs["convention"]
+        assert fh.attrs["convention"].startswith("laminar (")
     assert "BPe: 2" in (tmp_path / "out" / "case.yaml").read_text()
 
 

@@ -343,3 +343,55 @@ def test_batch_template_missing_is_a_one_line_error(tmp_path, monkeypatch):
     with pytest.raises(batch.BatchError, match=r"none\.sh\.in: cannot read the pbs template.*"
                                                r"source tree"):
         batch.write_batch_scripts(sw, "pbs")
+
+def test_duplicate_key_and_quoted_number_in_sweep_file(tmp_path):
+    # YAML 1.2 section 3.2.1.1: mapping keys are unique
+    p = tmp_path / "dup.yaml"
+    p.write_text("sweep: s\nbase_case: {model: lowpe}\nvary:\n  parameters.Re: [20]\n"
+                 "  parameters.Re: [30]\n")
+    with pytest.raises(SweepError, match=r"line 5: duplicate key 'parameters.Re' "
+                                         r"\(first given at line 4\)"):
+        load_sweep(str(p))
+    base = dict(TINY_BASE, parameters={"Re": "40", "BPe": 1, "Pe": 0.1})
+    p = _write(tmp_path, {"sweep": "q", "base_case": base, "vary": {"parameters.BPe": [1]}})
+    with pytest.raises(SweepError, match=r"parameters.Re: must be a number > 0, got the string"):
+        load_sweep(str(p))
+    p = _write(tmp_path, {"sweep": "q", "base_case": TINY_BASE,
+                          "vary": {"parameters.BPe": {"from": "1", "to": 2, "count": 2}}})
+    with pytest.raises(SweepError, match=r"vary.parameters.BPe.from: must be a finite number, "
+                                         r"got the string '1'"):
+        load_sweep(str(p))
+
+
+# ------------------------------------------------------------------ progress while members run
+def test_progress_line_estimates_time_left():
+    from shearmix.tools.sweeps.launch import progress_line
+    # mean of finished (100 s, 200 s) = 150 s; a's own estimate 30 s, b has run 20 s of ~150 s;
+    # 2 waiting: (30 + 130 + 2 * 150) / 2 slots = 230 s (arithmetic)
+    line = progress_line(6, 2, 0, [("a", 50, 30), ("b", 20, None)], 400, [100, 200], 2)
+    assert line == ("sweep: 2 of 6 done; running: a (0m50s), b (0m20s); 2 waiting; "
+                    "elapsed 6m40s, about 3m50s left")
+    # before any member finished, a running member's own estimate stands for every member
+    line = progress_line(3, 0, 0, [("a", 10, 50)], 10, [], 1)
+    assert line.endswith("about 2m50s left")  # 50 + 2 * 60
+    line = progress_line(3, 1, 1, [("a", 10, None)], 10, [], 1)
+    assert "(1 failed or stopped)" in line and line.endswith("time left unknown yet")
+
+
+def test_sweep_run_shows_progress_while_members_run(tmp_path):
+    from shearmix.tools.sweeps.launch import run_members
+    base = {**TINY_BASE, "time": {"t_end": 0.2, "dt": 0.02, "adaptive": False}}
+    sweep = load_sweep(str(_write(tmp_path, {"sweep": "prog", "base_case": base,
+                                             "vary": {"parameters.BPe": [0.5, 5]}})))
+    expand(sweep, log=lambda m: None)
+    lines = []
+    env = dict(os.environ, OMP_NUM_THREADS="1", SHEARMIX_SERIAL="1")
+    codes = run_members(sweep, log=lines.append, env=env, report_seconds=3600)
+    assert codes == {"BPe0.5": 0, "BPe5": 0}
+    progress = [ln for ln in lines if " done" in ln]
+    assert progress[0].startswith("sweep: 0 of 2 done; running: BPe0.5 (")
+    assert "; 1 waiting; elapsed " in progress[0] and "time left unknown yet" in progress[0]
+    assert any(ln.startswith("sweep: 1 of 2 done; running: BPe5 (") and "about" in ln
+               for ln in progress)
+    assert progress[-1].startswith("sweep: 2 of 2 done; running: none; 0 waiting; elapsed ")
+    assert progress[-1].endswith("about 0m00s left")

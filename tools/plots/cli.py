@@ -36,9 +36,20 @@ def _make(what, run_dir, out_dir, start):
         return plots.plot_spectra(run_dir, path, start=start)
     from shearmix.tools.plots.fields import run_fields
     f = run_fields(run_dir)
-    title = f"{os.path.basename(os.path.abspath(run_dir))}: t = {f['t']:.4g} " \
-            f"({os.path.basename(f['source'])})"
+    title = plots.run_title(_run_case(run_dir), os.path.basename(os.path.abspath(run_dir)))
+    title += f"; t = {f['t']:.4g} ({os.path.basename(f['source'])})"
     return plots.plot_slices(f, f["lengths"], path, title=title)
+
+
+def _run_case(run_dir):
+    """The case a run folder records (``case.yaml``, written by every run), or ``{}``."""
+    import yaml
+    try:
+        with open(os.path.join(run_dir, "case.yaml"), encoding="utf-8") as fh:
+            case = yaml.safe_load(fh)
+    except (OSError, yaml.YAMLError):
+        return {}
+    return case if isinstance(case, dict) else {}
 
 
 def cmd_plot(args):

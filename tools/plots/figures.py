@@ -16,7 +16,9 @@ Across a sweep: :func:`plot_regime_map` (regime labels over ``(BPe, Re)``) and
 :func:`plot_scaling` (quantities against ``BPe`` with error bars, the fitted
 power law and the expected slope).
 
-Each function returns the path it wrote.
+Every title names the run's model, parameters and forcing convention (``Re``
+means different things in the ``laminar`` and ``unit`` conventions); every
+colour bar and axis says what it shows. Each function returns the path it wrote.
 """
 from __future__ import annotations
 
@@ -26,7 +28,7 @@ import os
 import numpy as np
 
 __all__ = ["plot_series", "plot_spectra", "plot_slices", "plot_regime_map", "plot_scaling",
-           "steady_start"]
+           "steady_window", "run_title"]
 
 #: marker colours of the regime labels (shearmix.tools.analysis.regimes.REGIMES)
 REGIME_COLOURS = {"isotropic": "tab:blue", "stratified_turbulence": "tab:green",
@@ -48,16 +50,57 @@ def _save(fig, path):
     return path
 
 
-def steady_start(data, start=None):
-    """Start of the steady window: ``start`` if given, else MSER on K and eps (shearmix.tools.analysis.steady)."""
+#: how the figures name the series quantities (docs/analysis.md)
+QUANTITY_LABELS = {"Lz_turb": r"vertical scale $L_z$", "w_rms": r"$w_{rms}$",
+                   "D_flux": r"mixing coefficient $D$ (from the flux)",
+                   "D_estimate": r"mixing coefficient $D$ (estimate)", "eta": r"$\eta$"}
+
+
+def steady_window(data, start=None):
+    """Start of the steady window, or ``None`` when there is no reliable one.
+
+    ``start`` if given; else the MSER start on ``K`` and ``eps``
+    (shearmix.tools.analysis.steady) when that detection calls it reliable, as
+    ``shearmix summary`` does; never a window ``summary`` would not report.
+    """
     if start is not None:
         return float(start)
     from shearmix.tools.analysis.steady import detect_steady_state
-    t = data["t"]
     try:
-        return detect_steady_state(t, {q: data[q] for q in ("K", "eps")}).t_start
+        found = detect_steady_state(data["t"], {q: data[q] for q in ("K", "eps")})
     except (ValueError, KeyError):
-        return float(t[len(t) // 2])  # too short for MSER: the second half
+        return None  # too short for MSER
+    return float(found.t_start) if found.reliable else None
+
+
+def _case_dict(attrs):
+    case = attrs.get("case", {})
+    if isinstance(case, (str, bytes)):
+        import yaml
+        case = yaml.safe_load(case)
+    return case if isinstance(case, dict) else {}
+
+
+def run_title(case, fallback="run"):
+    """``name (model, Re=..., BPe=...)`` and, on a second line, the forcing convention."""
+    from shearmix.solver.case import CaseError, case_from_dict
+    try:
+        c = case_from_dict(case)
+    except CaseError:
+        return fallback
+    p = {k: v for k, v in c.raw["parameters"].items() if isinstance(v, (int, float))}
+    pars = ", ".join(f"{k}={v:g}" for k, v in p.items())
+    return f"{c.name} ({c.model}, {pars})\nforcing convention {c.convention}"
+
+
+def _log_ticks(ax, axis="x"):
+    """Log-axis labels at 1, 2, 5 x 10^n as plain numbers, unlabelled minor ticks (no overlap)."""
+    from matplotlib import ticker
+    a = ax.xaxis if axis == "x" else ax.yaxis
+    a.set_major_locator(ticker.LogLocator(base=10, subs=(1.0, 2.0, 5.0), numticks=8))
+    a.set_major_formatter(ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+    a.set_minor_locator(ticker.LogLocator(base=10, subs=tuple(range(1, 10)), numticks=12))
+    a.set_minor_formatter(ticker.NullFormatter())
 
 
 def plot_series(run_dir, path, start=None):
@@ -66,32 +109,34 @@ def plot_series(run_dir, path, start=None):
     data, attrs, _ = read_timeseries(run_dir)
     plt = _pyplot()
     t = data["t"]
-    t0 = steady_start(data, start) if t.size >= 40 else None
-    fig, ax = plt.subplots(3, 1, figsize=(8, 8), sharex=True)
+    t0 = steady_window(data, start)
+    fig, ax = plt.subplots(3, 1, figsize=(8, 8.4), sharex=True)
     for q, lab in (("K", "K"), ("Kx", "K_x"), ("Ky", "K_y"), ("Kz", "K_z")):
         if q in data:
             ax[0].plot(t, data[q], label=f"${lab}$", lw=1)
     ax[0].set_yscale("log")
     ax[0].set_ylabel("kinetic energy")
-    for q, lab, sign in (("I", "I", 1), ("eps", r"\varepsilon", 1), ("J", "-J", -1)):
+    for q, lab, sign in (("I", "$I$ (power input)", 1), ("eps", r"$\varepsilon$ (dissipation)", 1),
+                         ("J", "$-J$ (buoyancy flux)", -1)):
         if q in data:
-            ax[1].plot(t, sign * data[q], label=f"${lab}$", lw=1)
+            ax[1].plot(t, sign * data[q], label=lab, lw=1)
     ax[1].set_yscale("symlog", linthresh=1e-3)
-    ax[1].set_ylabel("budget terms")
+    ax[1].set_ylabel("kinetic energy budget")
     if "eta" in data:
         ax[2].plot(t, data["eta"], color="k", lw=1)
     ax[2].set_ylabel(r"mixing efficiency $\eta$")
-    ax[2].set_xlabel("t")
+    ax[2].set_xlabel("time $t$")
     for a in ax:
         if t0 is not None:
             a.axvspan(t0, t[-1], color="0.9", zorder=0)
         if a.get_legend_handles_labels()[0]:
             a.legend(loc="best", fontsize=8)
-    case = attrs.get("case", {})
-    p = case.get("parameters", {}) if isinstance(case, dict) else {}
-    title = f"{case.get('name', os.path.basename(os.path.abspath(run_dir)))} ({attrs.get('model', '')}, " + \
-        ", ".join(f"{k}={v:g}" for k, v in p.items() if isinstance(v, (int, float))) + ")"
-    ax[0].set_title(title + ("\nshaded: steady window" if t0 is not None else ""), fontsize=9)
+    title = run_title(_case_dict(attrs), os.path.basename(os.path.abspath(run_dir)))
+    if t0 is not None:
+        note = f"shaded: steady window from t = {t0:.4g}" + (" (given)" if start is not None else "")
+    else:
+        note = "no reliable steady state (as in 'shearmix summary'): nothing shaded"
+    ax[0].set_title(f"{title}\n{note}", fontsize=9)
     fig.tight_layout()
     return _save(fig, path)
 
@@ -108,10 +153,15 @@ def plot_spectra(run_dir, path, start=None):
         try:
             from shearmix.tools.analysis.summary import read_timeseries
             data, _, _ = read_timeseries(run_dir)
-            t0 = steady_start(data) if data["t"].size >= 40 else None
+            t0 = steady_window(data)
         except (OSError, ValueError):
             t0 = None
-    sel = t >= t0 if t0 is not None else np.ones(t.size, bool)
+    if t0 is not None:
+        sel = t >= t0
+        how = "given window" if start is not None else "steady window"
+    else:
+        sel = t >= t[t.size // 2]
+        how = "no reliable steady state: last half of the records"
     if not sel.any():
         sel[-1] = True
     plt = _pyplot()
@@ -125,13 +175,16 @@ def plot_spectra(run_dir, path, start=None):
                        (kin.sum(axis=0), r"$E$")):
             ax[0, j].loglog(k[pos], np.where(y[pos] > 0, y[pos], np.nan), label=lab, lw=1)
         ax[1, j].loglog(k[pos], np.where(th[pos] > 0, th[pos], np.nan), color="tab:red", lw=1)
-        ax[1, j].set_xlabel(d if d != "shell" else "|k| (shells)")
+        ax[1, j].set_xlabel(f"${d[0]}_{d[1]}$" if d != "shell" else "$|k|$ (shells)")
+        for a in ax[:, j]:
+            _log_ticks(a, "x")
     ax[0, 0].set_ylabel("kinetic energy spectrum")
-    ax[1, 0].set_ylabel(f"spectrum of {sp['attrs'].get('thermal_field', 'thermal field')}")
+    thermal = str(sp["attrs"].get("thermal_field", "thermal field")).replace("lap^-1", "∇⁻²")
+    ax[1, 0].set_ylabel(f"spectrum of {thermal}")
     ax[0, 0].legend(fontsize=8)
-    span = f"t in [{t[sel][0]:.4g}, {t[sel][-1]:.4g}], {int(sel.sum())} records"
-    fig.suptitle(f"{os.path.basename(os.path.abspath(run_dir))}: spectra averaged over {span}",
-                 fontsize=10)
+    span = f"t in [{t[sel][0]:.4g}, {t[sel][-1]:.4g}], {int(sel.sum())} records ({how})"
+    title = run_title(_case_dict(sp["attrs"]), os.path.basename(os.path.abspath(run_dir)))
+    fig.suptitle(f"{title}\nspectra averaged over {span}", fontsize=10)
     fig.tight_layout()
     return _save(fig, path)
 
@@ -163,11 +216,21 @@ def plot_slices(fields, lengths, path, title=""):
             ax[i, j].set_title(f"${name}$ at {where}", fontsize=9)
             ax[i, j].set_xlabel(labels[0])
             ax[i, j].set_ylabel(labels[1])
-            fig.colorbar(im, ax=ax[i, j], shrink=0.8)
+            fig.colorbar(im, ax=ax[i, j], shrink=0.8, label=f"${name}$")
     if title:
         fig.suptitle(title, fontsize=10)
     fig.tight_layout()
     return _save(fig, path)
+
+
+def _conventions(rows):
+    """'model M, forcing convention C' shared by the rows, or says that they differ."""
+    def one(key, what):
+        # the convention's name only: its laminar amplitude differs with Re
+        seen = sorted({str(r.get(key)).split(" (")[0] for r in rows if r.get(key)})
+        return f"{what} {seen[0]}" if len(seen) == 1 else (f"{what}s differ: " + "; ".join(seen)
+                                                           if seen else f"{what} not recorded")
+    return f"{one('model', 'model')}, {one('convention', 'forcing convention')}"
 
 
 def plot_regime_map(rows, path):
@@ -190,7 +253,8 @@ def plot_regime_map(rows, path):
     ax.set_yscale("log")
     ax.set_xlabel("BPe")
     ax.set_ylabel("Re")
-    ax.set_title("regimes (labels: tools/analysis/regimes.py; numbers: mixing efficiency)", fontsize=9)
+    ax.set_title(f"flow regime of each run (numbers: mixing efficiency $\\eta$)\n"
+                 f"{_conventions(rows)}", fontsize=9)
     if seen:
         ax.legend(fontsize=8, loc="best")
     fig.tight_layout()
@@ -222,7 +286,10 @@ def plot_scaling(rows, fits, path, quantities=("Lz_turb", "w_rms", "D_flux", "D_
             ax.legend(fontsize=7)
         ax.set_xscale("log")
         ax.set_yscale("log")
+        _log_ticks(ax, "y")
         ax.set_xlabel("BPe")
-        ax.set_title(q, fontsize=10)
+        ax.set_ylabel(QUANTITY_LABELS.get(q, q))
+    fig.suptitle(f"steady-state averages against BPe (error bars: one standard error)\n"
+                 f"{_conventions(rows)}", fontsize=9)
     fig.tight_layout()
     return _save(fig, path)

@@ -9,8 +9,9 @@
 
 Parameters come from a case file (changed with ``--set key=value``) or, with
 no case, from ``--model``, ``--Re``, ``--B``, ``--Pe``/``--Pr``, ``--BPe``,
-``--kf``, ``--amplitude``.  Bad input: one line naming the option, exit 2,
-nothing written.
+``--kf``, ``--amplitude`` (``box`` and ``mode`` need a case: the box and grid
+come from it).  Numbers may be written as in case files (``1/3``, ``2*pi``).
+Bad input: one line naming the option, exit 2, nothing written.
 """
 from __future__ import annotations
 
@@ -29,6 +30,26 @@ class BadInput(ValueError):
     pass
 
 
+class _OneLineParser(argparse.ArgumentParser):
+    """Argument errors as one line (the option and what is allowed), not the usage text."""
+
+    def error(self, message):
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+    def parse_known_args(self, args=None, namespace=None):
+        # refuse stray arguments here: the program's parser would print its usage text
+        namespace, extras = super().parse_known_args(args, namespace)
+        if extras:
+            self.error(f"unrecognized arguments: {' '.join(extras)}")
+        return namespace, extras
+
+
+def _number(text: str) -> float:
+    """A number written as in case files: ``0.5``, ``1e4``, ``1/3``, ``2*pi``."""
+    from shearmix.solver.case import parse_length
+    return parse_length(text)
+
+
 # ---------------------------------------------------------------- argument types
 def _range(text: str):
     """``LO:HI:N`` (N evenly spaced values) or a comma-separated list."""
@@ -37,11 +58,11 @@ def _range(text: str):
             parts = text.split(":")
             if len(parts) != 3:
                 raise ValueError
-            lo, hi, n = float(parts[0]), float(parts[1]), int(parts[2])
+            lo, hi, n = _number(parts[0]), _number(parts[1]), int(parts[2])
             if n < 1 or hi < lo or lo < 0 or not (math.isfinite(lo) and math.isfinite(hi)):
                 raise ValueError
             return np.linspace(lo, hi, n) if n > 1 else np.array([lo])
-        vals = np.array([float(v) for v in text.split(",") if v.strip()])
+        vals = np.array([_number(v) for v in text.split(",") if v.strip()])
         if vals.size == 0 or np.any(vals < 0) or not np.all(np.isfinite(vals)):
             raise ValueError
         return vals
@@ -53,7 +74,7 @@ def _range(text: str):
 
 def _interval(text: str):
     try:
-        lo, hi = (float(v) for v in text.split(":"))
+        lo, hi = (_number(v) for v in text.split(":"))
         if not (0 <= lo <= hi) or not math.isfinite(hi):
             raise ValueError
         return lo, hi
@@ -64,7 +85,7 @@ def _interval(text: str):
 
 def _nonneg(text: str):
     try:
-        v = float(text)
+        v = _number(text)
         if v < 0 or not math.isfinite(v):
             raise ValueError
         return v
@@ -74,7 +95,7 @@ def _nonneg(text: str):
 
 def _positive(text: str):
     try:
-        v = float(text)
+        v = _number(text)
         if v <= 0 or not math.isfinite(v):
             raise ValueError
         return v
@@ -100,18 +121,19 @@ def _common(p, case_required=False):
         p.add_argument("case", nargs="?", help="case file (YAML); or give the parameters below")
     p.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="override a case key, e.g. --set parameters.Re=200 (repeatable)")
-    if not case_required:
-        g = p.add_argument_group("parameters without a case file")
-        g.add_argument("--model", choices=("boussinesq", "lowpe"))
-        g.add_argument("--Re", type=_positive)
-        g.add_argument("--B", type=_nonneg)
-        g.add_argument("--Pe", type=_positive)
-        g.add_argument("--Pr", type=_positive, help="Prandtl number, Pe = Re*Pr")
-        g.add_argument("--BPe", type=_nonneg)
-        g.add_argument("--kf", type=_positive, default=None, help="forcing wavenumber (default 1)")
-        g.add_argument("--amplitude", default=None,
-                       help="forcing amplitude: laminar (U_L = 1, default), unit (F0 = 1) or a "
-                            "number F0")
+    # box and mode take them too, to refuse them with the same one line as the others
+    g = p.add_argument_group("parameters without a case file"
+                             + (" (not with this action: use --set)" if case_required else ""))
+    g.add_argument("--model", choices=("boussinesq", "lowpe"))
+    g.add_argument("--Re", type=_positive)
+    g.add_argument("--B", type=_nonneg)
+    g.add_argument("--Pe", type=_positive)
+    g.add_argument("--Pr", type=_positive, help="Prandtl number, Pe = Re*Pr")
+    g.add_argument("--BPe", type=_nonneg)
+    g.add_argument("--kf", type=_positive, default=None, help="forcing wavenumber (default 1)")
+    g.add_argument("--amplitude", default=None,
+                   help="forcing amplitude: laminar (U_L = 1, default), unit (F0 = 1) or a "
+                        "number F0")
     p.add_argument("--force", action="store_true", help="replace existing output files")
 
 
@@ -121,7 +143,9 @@ def add_arguments(subparsers):
         "stability", help="linear stability of the laminar flow (growth rates, maps, "
                           "neutral curves, box advice, eigenmode start)",
         description="Linear stability of the laminar flow U_L sin(kf y) e_x; see docs/stability.md.")
-    acts = top.add_subparsers(dest="stability_action", metavar="ACTION")
+    top.error = _OneLineParser.error.__get__(top)  # the program's parser class is not ours
+    acts = top.add_subparsers(dest="stability_action", metavar="ACTION",
+                              parser_class=_OneLineParser)
     acts.required = True
 
     p = acts.add_parser("point", help="leading eigenvalue at one (kx, kz, ky0)")
@@ -184,6 +208,29 @@ def _fail(msg: str) -> int:
     return EXIT_BAD_INPUT
 
 
+def _warn(msg: str) -> None:
+    """A warning among the results (as ``box`` prints its warnings), so saved output keeps it."""
+    print(f"warning: {msg}")
+
+
+def edge_warnings(gm, i, j):
+    """Warnings when the fastest grid point ``(i, j)`` of a map lies on an open edge of its range.
+
+    ``kx = 0`` and ``kz = 0`` are not open edges: the growth rate is even in
+    each wavenumber, so a maximum there is a true one.
+    """
+    out = []
+    for name, k, n in (("kx", gm.kx, i), ("kz", gm.kz, j)):
+        if k.size < 2:
+            continue
+        if n == k.size - 1 or (n == 0 and k[0] > 0):
+            side = "upper" if n == k.size - 1 else "lower"
+            out.append(f"the fastest grid point lies on the {side} edge of the --{name} range "
+                       f"({name} = {k[n]:.6g}): the most unstable mode may lie outside it; "
+                       f"widen --{name}")
+    return out
+
+
 def _setup(args):
     """``(params, case_or_None, case_yaml)``; BadInput on any problem."""
     from .params import FlowParams, params_from_case
@@ -206,8 +253,11 @@ def _setup(args):
         raise BadInput("--set: needs a case file")
     if args.model is None:
         raise BadInput("--model: give a case file or --model boussinesq|lowpe with its parameters")
-    if args.Re is None:
-        raise BadInput("--Re: required without a case file (a number > 0)")
+    re_varied = args.Re is None
+    if re_varied:
+        if getattr(args, "vary", None) != "Re":
+            raise BadInput("--Re: required without a case file (a number > 0)")
+        args.Re = 1.0  # only where the search for the neutral Re starts
     kf = args.kf if args.kf is not None else 1.0
     amp = args.amplitude if args.amplitude is not None else "laminar"
     if amp == "laminar":
@@ -250,6 +300,8 @@ def _setup(args):
         if isinstance(exc, BadInput):
             raise
         raise BadInput(str(exc)) from None
+    if re_varied:
+        raw["parameters"]["Re"] = "varied"
     return params, None, yaml.safe_dump(raw, sort_keys=False)
 
 
@@ -282,8 +334,8 @@ def _guard(fn):
     return wrapped
 
 
-def _print_header(params, case):
-    print(f"# {params.describe()}")
+def _print_header(params, case, varied=None):
+    print(f"# {params.describe(varied)}")
     if case is not None:
         print(f"# case: {case.source}  convention: {case.convention}")
 
@@ -305,8 +357,14 @@ def run_point(args):
     print(f"kx={args.kx:g} kz={args.kz:g} ky0={args.ky0:g}: {_cplx(e.sigma)}")
     hist = ", ".join(f"M={m}: {s.real:+.10g}{s.imag:+.3g}i" for m, s in e.history)
     state = "converged" if e.converged else "NOT converged"
-    print(f"truncation |n| <= {e.M} ({e.method}), {state}; change at last step "
+    how = f"{e.method}, fixed by --harmonics" if args.harmonics else e.method
+    print(f"truncation |n| <= {e.M} ({how}), {state}; change at last step "
           f"{e.change:.2e}; history {hist}")
+    if not e.converged:
+        more = (f"at |n| <= {e.history[-1][0]} the eigenvalue changes by {e.change:.2e}; "
+                "raise --harmonics or leave it out for the automatic truncation"
+                if args.harmonics else "the largest truncation was reached")
+        _warn(f"truncation |n| <= {e.M} is not converged: {more}")
     if args.eigenfunction:
         from .tables import write_csv
         op = e.operator
@@ -334,7 +392,7 @@ def run_point(args):
 @_guard
 def run_map(args):
     """Growth-rate map, the fastest grid point and its refinement."""
-    from . import maps
+    from . import eigen, maps
     params, case, cy = _setup(args)
     _outputs(args, "--csv", "--png")
     gm = maps.growth_map(params, args.kx, args.kz, args.ky0, M=args.harmonics)
@@ -343,8 +401,17 @@ def run_map(args):
     print(f"map {gm.kx.size} x {gm.kz.size} at ky0={gm.ky0:g}, truncation |n| <= {gm.M}, "
           f"{gm.seconds:.2f} s")
     f = gm.check["fastest"]
+    fixed = " (fixed by --harmonics)" if args.harmonics else ""
     print(f"fastest grid point kx={gm.kx[i]:.6g} kz={gm.kz[j]:.6g}: {_cplx(gm.sigma[i, j])}; "
-          f"truncation check M={f['M_check']}: change {f['change']:.2e}")
+          f"truncation{fixed} check M={f['M_check']}: change {f['change']:.2e}")
+    tol = eigen.RTOL * eigen.rate_scale(params, gm.kx[i], gm.kz[j])
+    if not f["change"] <= tol:
+        _warn(f"truncation |n| <= {gm.M} is not converged at the fastest grid point: at "
+              f"|n| <= {f['M_check']} its eigenvalue changes by {f['change']:.2e}"
+              + ("; raise --harmonics or leave it out" if args.harmonics else ""))
+    edges = edge_warnings(gm, i, j)
+    for w in edges:
+        _warn(w)
     opt = None
     if not args.no_refine and gm.growth[i, j] > 0:
         lo = lambda a, k: a[max(k - 1, 0)]
@@ -361,6 +428,7 @@ def run_map(args):
                 for ii, a in enumerate(gm.kx) for jj, c in enumerate(gm.kz)]
         extra = {"ky0": gm.ky0, "truncation": f"M={gm.M}; at fastest point M={f['M_check']} "
                  f"changes sigma by {f['change']:.3g}"}
+        extra.update({f"warning{k}": w for k, w in enumerate(edges)})
         if opt is not None:
             extra["most_unstable"] = (f"kx={opt.kx:.10g} kz={opt.kz:.10g} growth={opt.growth:.10g} "
                                       f"frequency={opt.frequency:.10g}")
@@ -376,9 +444,9 @@ def run_map(args):
     return 0
 
 
-def _provenance(what, params, cy):
+def _provenance(what, params, cy, varied=None):
     from .tables import header_lines
-    return header_lines(what, params, cy)
+    return header_lines(what, params, cy, varied=varied)
 
 
 @_guard
@@ -391,7 +459,7 @@ def run_neutral(args):
     _outputs(args, "--csv", "--png")
     curve = maps.neutral_curve(params, args.vary, args.along, args.k, other=args.other,
                                other_bounds=args.other_range, ky0=args.ky0, limits=args.limits)
-    _print_header(params, case)
+    _print_header(params, case, args.vary)
     oname = "kz" if args.along == "kx" else "kx"
     print(f"neutral {args.vary} against {args.along} ({oname} "
           f"{'maximised over ' + str(args.other_range) if args.other is None else '= ' + format(args.other, 'g')})")
@@ -404,11 +472,12 @@ def run_neutral(args):
         rows = [[float(k), float(v), float(o)] for k, v, o in zip(curve.k, curve.value, curve.other)]
         write_csv(args.csv, [args.along, args.vary, oname], rows, "neutral", params, cy,
                   extra={"varied": args.vary, "other": curve.other_mode, "ky0": args.ky0,
-                         "limits": f"{args.limits[0]:g}:{args.limits[1]:g}"}, force=args.force)
+                         "limits": f"{args.limits[0]:g}:{args.limits[1]:g}"}, force=args.force,
+                  varied=args.vary)
         print(f"wrote {args.csv}")
     if args.png:
         from .plots import neutral_figure
-        neutral_figure(curve, args.png, "\n".join(_provenance("neutral", params, cy)))
+        neutral_figure(curve, args.png, "\n".join(_provenance("neutral", params, cy, args.vary)))
         print(f"wrote {args.png}")
     return 0
 

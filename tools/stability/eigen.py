@@ -42,8 +42,8 @@ class Eigen:
     ``sigma``: leading eigenvalue (growth rate ``sigma.real``, the mode varies
     as ``exp(i kx x + i kz z + sigma t)``); its conjugate is an eigenvalue too.
     ``history``: list of ``(M, sigma)`` at the truncations tried;
-    ``change``: ``|sigma(M) - sigma(M_prev)|`` at the last step (``nan`` when
-    the truncation was fixed); ``vector``: eigenvector when asked for.
+    ``change``: ``|sigma(M) - sigma(M_prev)|`` at the last step (for a fixed
+    truncation, ``M_prev = M`` and the step goes up to ``ceil(1.5 M)``); ``vector``: eigenvector when asked for.
     """
 
     params: FlowParams
@@ -226,17 +226,22 @@ def solve(params: FlowParams, kx: float, kz: float, ky0: float = 0.0, M: int | N
           M_start: int = M_START, M_max: int = M_MAX) -> Eigen:
     """Leading eigenvalue at ``(kx, kz, ky0)``.
 
-    With ``M`` given, that truncation is used as is.  Otherwise ``M`` starts at
-    ``M_start`` and grows by 1.5 until two successive leading eigenvalues differ
-    by less than ``rtol * rate_scale``; ``converged`` is False if ``M_max`` is
-    reached first.
+    With ``M`` given, the answer is that truncation's, checked once against
+    ``ceil(1.5 M)``: ``converged`` says whether the two differ by less than
+    ``rtol * rate_scale``.  Otherwise ``M`` starts at ``M_start`` and grows by
+    1.5 until two successive leading eigenvalues differ by that much;
+    ``converged`` is False if ``M_max`` is reached first.
     """
-    if M is not None:
-        op = build(params, kx, kz, ky0, M)
-        s, v, how, _ = leading(op, vectors=vectors, method="dense" if method == "auto" else method)
-        return Eigen(params, kx, kz, ky0, s, M, how, True, math.nan, [(M, s)], v,
-                     op if vectors else None)
     tol = rtol * rate_scale(params, kx, kz)
+    if M is not None:
+        fixed = method if method != "auto" else "dense"
+        op = build(params, kx, kz, ky0, M)
+        s, v, how, cands = leading(op, vectors=vectors, method=fixed)
+        m2 = int(math.ceil(1.5 * M))
+        s2 = leading(build(params, kx, kz, ky0, m2), guesses=cands, method=method,
+                     dense_max=DENSE_MAX_POINT)[0]
+        return Eigen(params, kx, kz, ky0, s, M, how, abs(s2 - s) <= tol, abs(s2 - s),
+                     [(M, s), (m2, s2)], v, op if vectors else None)
     history = []
     m = max(2, int(M_start))
     prev = None

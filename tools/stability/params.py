@@ -1,7 +1,7 @@
 """Parameters of the laminar flow and of the model whose stability is computed.
 
 The base state is the laminar flow ``U(y) = U_L sin(kf y) e_x``, ``T = 0``
-(DESIGN.md section 2), with ``U_L = F0 Re / kf^2``.  Two models:
+(docs/equations.md), with ``U_L = F0 Re / kf^2``.  Two models:
 
 * ``boussinesq``: ``Re``, ``B``, ``Pe`` (``BPe = B*Pe`` derived);
 * ``lowpe``: ``Re``, ``BPe``.
@@ -110,7 +110,11 @@ class FlowParams:
 
     @property
     def convention(self) -> str:
-        return "laminar amplitude fixed (U_L)" if self.hold == "U_L" else "forcing amplitude fixed (F0)"
+        """The forcing convention by its case-file name (``forcing.amplitude``) and what it holds."""
+        if self.hold == "U_L":
+            return "laminar (F0 = kf^2/Re: laminar amplitude U_L held as Re varies)"
+        name = "unit" if self.F0 == 1.0 else f"F0 = {self.F0:g}"
+        return f"{name} (F0 held as Re varies: U_L = F0 Re/kf^2)"
 
     def with_value(self, name: str, value: float) -> "FlowParams":
         """Copy with one parameter changed.
@@ -129,12 +133,17 @@ class FlowParams:
             raise ValueError(f"{name}: can vary only Re, B, Pe, BPe, U_L or kf")
         return dataclasses.replace(self, **{name: value})
 
-    def describe(self) -> str:
+    def describe(self, varied: str | None = None) -> str:
+        """One line of the parameters; ``varied`` names one shown as varied, not by value."""
         if self.model == "boussinesq":
-            p = f"Re={self.Re:g} B={self.B:g} Pe={self.Pe:g} (BPe={self.BPe:g})"
+            vals = [("Re", self.Re), ("B", self.B), ("Pe", self.Pe)]
         else:
-            p = f"Re={self.Re:g} BPe={self.BPe:g}"
-        return f"model={self.model} {p} kf={self.kf:g} U_L={self.U_L:g} [{self.convention}]"
+            vals = [("Re", self.Re), ("BPe", self.BPe)]
+        p = " ".join(f"{k}=(varied)" if k == varied else f"{k}={v:g}" for k, v in vals)
+        if self.model == "boussinesq":
+            p += " (BPe=(varied))" if varied in ("BPe", "B") else f" (BPe={self.BPe:g})"
+        ul = "(varied)" if varied == "Re" and self.hold == "F0" else f"{self.U_L:g}"
+        return f"model={self.model} {p} kf={self.kf:g} U_L={ul} [{self.convention}]"
 
 
 def params_from_case(case) -> FlowParams:

@@ -43,10 +43,10 @@ def growth_map_figure(gmap, path, description, box=None, optimum=None):
     else:
         if gmap.kz.size == 1:
             ax.plot(gmap.kx, gmap.growth[:, 0], "k-")
-            ax.set_ylabel("growth rate")
+            ax.set_ylabel("growth rate Re(sigma)")
         else:
             ax.plot(gmap.kz, gmap.growth[0, :], "k-")
-            ax.set_ylabel("growth rate")
+            ax.set_ylabel("growth rate Re(sigma)")
     if box is not None and gmap.kx.size > 1 and gmap.kz.size > 1:
         dkx, dkz = 2 * math.pi / box.Lx, 2 * math.pi / box.Lz
         bx = np.arange(math.ceil(gmap.kx[0] / dkx - 1e-9), math.floor(gmap.kx[-1] / dkx + 1e-9) + 1) * dkx
@@ -60,7 +60,7 @@ def growth_map_figure(gmap, path, description, box=None, optimum=None):
     if gmap.kx.size > 1 and gmap.kz.size > 1:
         ax.set_ylabel("kz")
     ax.set_title(f"{gmap.params.model}: {gmap.params.describe().split(' kf')[0].split(' ', 1)[1]}, "
-                 f"ky0={gmap.ky0:g}", fontsize=9)
+                 f"ky0={gmap.ky0:g}\nforcing convention {gmap.params.convention}", fontsize=9)
     if ax.get_legend_handles_labels()[0]:
         ax.legend(loc="upper right", fontsize=8)
     fig.tight_layout()
@@ -78,7 +78,9 @@ def neutral_figure(curve, path, description):
     ax.set_ylabel(f"neutral {curve.name}")
     if curve.name in ("Re", "BPe", "B") and np.all(curve.value[ok] > 0) and ok.any():
         ax.set_yscale("log")
-    ax.set_title(f"{curve.params.model}, other wavenumber {curve.other_mode}", fontsize=9)
+    other = "maximised over" if curve.other_mode == "max" else "fixed"
+    ax.set_title(f"{curve.params.describe(curve.name).split(' [')[0]}; other wavenumber {other}\n"
+                 f"forcing convention {curve.params.convention}", fontsize=9)
     fig.tight_layout()
     _save(fig, path, description)
     plt.close(fig)

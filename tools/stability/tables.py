@@ -13,9 +13,9 @@ import os
 from .modefile import program_version
 
 
-def header_lines(what: str, params, case_yaml: str, extra=None):
+def header_lines(what: str, params, case_yaml: str, extra=None, varied=None):
     lines = [f"shearmix stability {what}", f"version: {program_version()}",
-             f"convention: {params.convention}", f"parameters: {params.describe()}",
+             f"convention: {params.convention}", f"parameters: {params.describe(varied)}",
              "modes: exp(i kx x + i kz z + sigma t) sum_n c_n exp(i (ky0 + n kf) y); "
              "growth = Re(sigma), frequency = |Im(sigma)|"]
     for k, v in (extra or {}).items():
@@ -36,12 +36,13 @@ def check_writable(path: str, force: bool, option: str):
         raise ValueError(f"{option}: folder {d} does not exist")
 
 
-def write_csv(path: str, columns, rows, what, params, case_yaml, extra=None, force=False):
+def write_csv(path: str, columns, rows, what, params, case_yaml, extra=None, force=False,
+              varied=None):
     """Write ``rows`` (sequences matching ``columns``) under the provenance header."""
     check_writable(path, force, "output")
     tmp = path + ".part"
     with open(tmp, "w", newline="", encoding="utf-8") as fh:
-        for ln in header_lines(what, params, case_yaml, extra):
+        for ln in header_lines(what, params, case_yaml, extra, varied):
             fh.write("# " + ln + "\n")
         w = csv.writer(fh)
         w.writerow(columns)

@@ -24,6 +24,7 @@ What happens to each member depends on its state:
 from __future__ import annotations
 
 import os
+import re
 import shlex
 import shutil
 import signal
@@ -41,7 +42,12 @@ from shearmix.tools.sweeps.status import (
     write_record,
 )
 
-__all__ = ["shearmix_command", "mpi_prefix", "plan_member", "run_members", "chain_source"]
+__all__ = ["shearmix_command", "mpi_prefix", "plan_member", "run_members", "chain_source",
+           "progress_line", "REPORT_SECONDS"]
+
+#: seconds between progress lines while members run (one also at every start and end)
+REPORT_SECONDS = 60.0
+_LEFT = re.compile(r"left (\d+):(\d\d):(\d\d)\s*$")
 
 
 def shearmix_command():
@@ -152,8 +158,62 @@ def _finish(sweep, member, proc, logf, code):
     write_record(run_dir, rec)
 
 
+def _clock(seconds):
+    seconds = max(0, int(round(seconds)))
+    h, m, s = seconds // 3600, seconds % 3600 // 60, seconds % 60
+    return f"{h}h{m:02d}m{s:02d}s" if h else f"{m}m{s:02d}s"
+
+
+def progress_line(total, done, failed, running, elapsed, durations, parallel):
+    """One line of a sweep's progress.
+
+    ``running``: ``(name, seconds running, seconds left or None)`` per running
+    member (``left`` from the engine's own progress line). Time left: each
+    running member's own estimate (else the mean duration of the members
+    finished so far less its time running) plus the mean duration for each
+    member still waiting, shared over ``parallel`` slots; unknown until one of
+    these exists.
+    """
+    waiting = total - done - len(running)
+    known = list(durations) or [el + left for _, el, left in running if left is not None]
+    per = sum(known) / len(known) if known else None
+    work = 0.0
+    for _, el, left in running:
+        if left is not None:
+            work += left
+        elif per is not None:
+            work += max(per - el, 0.0)
+        else:
+            work = None
+            break
+    if work is not None and per is None and waiting:
+        work = None
+    run = ", ".join(f"{name} ({_clock(el)})" for name, el, _ in running) or "none"
+    left = "time left unknown yet" if work is None else \
+        f"about {_clock((work + waiting * (per or 0.0)) / max(parallel, 1))} left"
+    bad = f" ({failed} failed or stopped)" if failed else ""
+    return (f"sweep: {done} of {total} done{bad}; running: {run}; {waiting} waiting; "
+            f"elapsed {_clock(elapsed)}, {left}")
+
+
+def _engine_left(sweep, member):
+    """Seconds left by the newest progress line of a running member's log, or None."""
+    try:
+        with open(os.path.join(sweep.run_dir(member), RUN_LOG), "rb") as fh:
+            fh.seek(0, os.SEEK_END)
+            fh.seek(max(0, fh.tell() - 4096))
+            lines = fh.read().decode("utf-8", "replace").splitlines()
+    except OSError:
+        return None
+    for line in reversed(lines):
+        m = _LEFT.search(line)
+        if m:
+            return 3600 * int(m.group(1)) + 60 * int(m.group(2)) + int(m.group(3))
+    return None
+
+
 def run_members(sweep, names=None, ranks=1, parallel=1, launcher=None, retry=False, sets=None,
-                log=print, poll=0.2, env=None):
+                log=None, poll=0.2, env=None, report_seconds=REPORT_SECONDS):
     """Run (or resume) members, at most ``parallel`` at a time.
 
     Chained members run in chain order: a member starts only after its
@@ -166,18 +226,36 @@ def run_members(sweep, names=None, ranks=1, parallel=1, launcher=None, retry=Fal
     sets : list of str, optional
         Extra ``key=value`` overrides for every run (e.g. ``time.wall_hours=11.5``).
 
+    Progress: a :func:`progress_line` at every start and end of a member and
+    every ``report_seconds`` while members run.
+
     Returns
     -------
     dict
         Member name -> exit code of the runs started here (skipped members
         are absent).
     """
+    log = log or (lambda msg: print(msg, flush=True))  # seen at once also in a batch log
     chosen = set(names) if names else {m.name for m in sweep.members}
     queues = [[m for m in chain if m.name in chosen] for chain in sweep.chains()]
     queues = [q for q in queues if q]
     env = dict(os.environ if env is None else env)
     env.setdefault("OMP_NUM_THREADS", "1")  # one core per rank; several runs share the machine
     active, codes = [], {}
+    total = sum(len(q) for q in queues)
+    done, failed, durations = 0, 0, []
+    began = time.monotonic()
+    started_at = {}
+    last_report = began
+
+    def report():
+        nonlocal last_report
+        now = time.monotonic()
+        last_report = now
+        running = [(m.name, now - started_at[m.name], _engine_left(sweep, m))
+                   for _, _, m, _ in active]
+        log(progress_line(total, done, failed, running, now - began, durations, parallel))
+
     # a batch system ends a job with SIGTERM: treat it as an interrupt, so the
     # runs are asked to stop (they checkpoint) and their exit codes recorded
     previous = signal.getsignal(signal.SIGTERM)
@@ -193,8 +271,9 @@ def run_members(sweep, names=None, ranks=1, parallel=1, launcher=None, retry=Fal
                     if action[0] == "skip":
                         log(f"sweep: {member.name}: skipped ({action[1]})")
                         q.pop(0)
+                        done += 1
                         if action[1] != "finished":  # a chain cannot go past it
-                            _drop_rest(q, member, log)
+                            done += _drop_rest(q, member, log)
                         if not q:
                             queues.remove(q)
                         started = True
@@ -203,7 +282,9 @@ def run_members(sweep, names=None, ranks=1, parallel=1, launcher=None, retry=Fal
                     verb = "resuming" if action[0] == "resume" else "starting"
                     log(f"sweep: {member.name}: {verb} ({ranks} rank{'s' if ranks > 1 else ''})")
                     proc, logf = _start(sweep, member, cmd, env)
+                    started_at[member.name] = time.monotonic()
                     active.append((proc, logf, member, q))
+                    report()
                     started = True
                     break
                 if not started:
@@ -218,12 +299,20 @@ def run_members(sweep, names=None, ranks=1, parallel=1, launcher=None, retry=Fal
                 active.remove(item)
                 word = {0: "finished", 4: "stopped early (resume later)"}.get(code, f"failed (exit {code})")
                 log(f"sweep: {member.name}: {word}")
+                done += 1
+                if code == 0:
+                    durations.append(time.monotonic() - started_at[member.name])
+                else:
+                    failed += 1
                 q.pop(0)
                 if code != 0:
-                    _drop_rest(q, member, log)
+                    done += _drop_rest(q, member, log)
                 if not q:
                     queues.remove(q)
+                report()
             if active:
+                if time.monotonic() - last_report >= report_seconds:
+                    report()
                 time.sleep(poll)
     except KeyboardInterrupt:
         log("sweep: interrupted; asking the running members to stop")
@@ -252,7 +341,11 @@ def _raise_interrupt(signum, frame):
 
 
 def _drop_rest(q, member, log):
+    """Drop the members chained after ``member`` (which did not finish); how many were dropped."""
     if q and q[0].chain_from == member.name:
         log(f"sweep: {', '.join(m.name for m in q)}: not started (chained after {member.name}, "
             "which did not finish)")
+        n = len(q)
         q.clear()
+        return n
+    return 0

@@ -42,7 +42,7 @@ import time
 
 import yaml
 
-from shearmix.solver.case import SCHEMA, CaseError, case_from_dict, set_dotted
+from shearmix.solver.case import SCHEMA, CaseError, case_from_dict, load_yaml, set_dotted
 from shearmix.solver.files.series import SERIES_FILE
 from shearmix.solver.version import __version__
 
@@ -142,9 +142,12 @@ def _fail(source, key, what):
 def _number(source, key, v):
     if isinstance(v, str):
         try:
-            v = float(v)  # YAML 1.1 reads 1e6 as a string
+            float(v)
         except ValueError:
             pass
+        else:
+            _fail(source, key, f"must be a finite number, got the string {v!r}; write the "
+                  "number without quotes")
     if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
         _fail(source, key, f"must be a finite number, got {v!r}")
     return v
@@ -231,16 +234,16 @@ def _get_dotted(raw, key):
 
 
 def _read_yaml(path, what):
+    """YAML of a sweep or case file: duplicate keys refused, each key's line kept."""
     try:
         with open(path, encoding="utf-8") as fh:
-            data = yaml.safe_load(fh)
+            text = fh.read()
     except OSError as exc:
         raise SweepError(f"{path}: cannot read {what} ({exc.strerror})") from None
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f" at line {mark.line + 1}" if mark else ""
-        raise SweepError(f"{path}: not valid YAML{where}") from None
-    return data
+    try:
+        return load_yaml(text, path)
+    except CaseError as exc:
+        raise SweepError(str(exc)) from None
 
 
 def load_sweep(path):
