@@ -20,12 +20,13 @@ from typing import Any, Callable
 
 import yaml
 
+from shearmix.solver.compute.options import (FFTW_EFFORTS, KERNEL_BACKENDS, PRODUCT_PASSES,
+                                             TRANSPOSES)
 from shearmix.solver.grid import dealias_cutoff
 
 MODELS = ("boussinesq", "lowpe")
 INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")
 MODE_COMPONENTS = ("vortical", "poloidal", "T")
-FFTW_EFFORTS = ("estimate", "measure", "patient")
 
 
 class CaseError(ValueError):
@@ -140,6 +141,15 @@ SCHEMA: dict[str, Key] = {
                                choices=FFTW_EFFORTS),
     "compute.wisdom": Key("str", "~/.cache/shearmix/fftw-wisdom",
                           "FFTW wisdom cache file ('' disables it)"),
+    "compute.product_pass": Key("choice", "auto", "how the advection's products are made: "
+                                "blocks of x-planes, whole arrays, or auto (blocks when the "
+                                "fields overflow the cache)", choices=PRODUCT_PASSES),
+    "compute.transpose": Key("choice", "auto", "the slab transpose: node shared memory, "
+                             "Alltoall messages, or auto (shared when all ranks share a node)",
+                             choices=TRANSPOSES),
+    "compute.kernels": Key("choice", "numba", "element-wise kernels: compiled (numba; numpy "
+                           "when Numba is missing) or their NumPy definitions",
+                           choices=KERNEL_BACKENDS),
 }
 
 SECTIONS = sorted({k.split(".")[0] for k in SCHEMA if "." in k})

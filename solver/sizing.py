@@ -5,7 +5,7 @@ import math
 import os
 
 from shearmix.solver.case import Case
-from shearmix.solver.compute.productpass import physical_pass, product_fields
+from shearmix.solver.compute.productpass import choose_product_pass, product_fields
 from shearmix.solver.grid import allowed_rank_counts, dealias_cutoff
 
 #: resident memory of Python and the libraries per rank (a 16^3 run, measured: ~250 MB)
@@ -70,7 +70,8 @@ def derived(case: Case, ranks: int | None = None) -> dict:
     }
     # the product pass the run will choose, all ranks on one node
     full = nfields == 3
-    blocks = physical_pass(product_fields(full) * nx * ny * nz * 8) == "blocks"
+    blocks = choose_product_pass(case.get("compute.product_pass"),
+                                 product_fields(full) * nx * ny * nz * 8) == "blocks"
     per_point = bytes_per_point(nfields, ranks or 1, blocks)
     out["product pass"] = "block-wise" if blocks else "whole arrays"
     out["expected memory"] = per_point * nx * ny * nz + LIBRARY_BYTES * (ranks or 1)

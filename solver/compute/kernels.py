@@ -6,13 +6,12 @@ job is one compiled loop over the spectral (or physical) slab that reads and
 writes each element once. The NumPy versions define the arithmetic; the
 Numba versions must agree with them to round-off (tests/solver/test_kernels.py).
 
-Set ``SHEARMIX_KERNELS=numpy`` to use the NumPy versions (and when Numba is
-not installed). Compiled kernels are cached on disk (``cache=True``) so later
-runs start in well under a second.
+The backend is the case's ``compute.kernels`` (:class:`shearmix.solver.compute.options.ComputeOptions`),
+set by the simulation with :func:`set_backend`; the NumPy versions run when
+Numba is not installed. Compiled kernels are cached on disk (``cache=True``) so
+later runs start in well under a second.
 """
 from __future__ import annotations
-
-import os
 
 import numpy as np
 
@@ -24,38 +23,22 @@ except ImportError:  # pragma: no cover
     HAVE_NUMBA = False
 
 
-BACKENDS = ("numba", "numpy")
+from shearmix.solver.compute.options import KERNEL_BACKENDS as BACKENDS  # noqa: E402
 
-#: the backend set in code, and ``SHEARMIX_KERNELS`` as read (None: not read yet)
-_BACKEND = {"name": None, "env": None}
-
-
-class KernelBackendError(ValueError):
-    """An unknown ``SHEARMIX_KERNELS``; the message is one line."""
+#: whether the compiled kernels run (a module flag: the kernels ask per block)
+_COMPILED = [HAVE_NUMBA]
 
 
-def set_backend(name: str | None) -> None:
-    """'numba', 'numpy', or None to follow ``SHEARMIX_KERNELS`` again (read anew)."""
-    if name not in (None,) + BACKENDS:
-        raise ValueError(f"kernel backend must be numba or numpy, got {name!r}")
-    _BACKEND["name"] = name
-    _BACKEND["env"] = None
+def set_backend(name: str) -> None:
+    """Run the ``'numba'`` (if installed) or the ``'numpy'`` kernels from now on."""
+    if name not in BACKENDS:
+        raise ValueError(f"compute.kernels: must be one of {', '.join(BACKENDS)}, got {name!r}")
+    _COMPILED[0] = HAVE_NUMBA and name == "numba"
 
 
 def use_numba() -> bool:
-    """Whether the compiled kernels run. ``SHEARMIX_KERNELS`` is read once (the
-    kernels ask per block, ~400 times a step at 128^3); a value other than
-    those of :data:`BACKENDS` raises :class:`KernelBackendError`."""
-    name = _BACKEND["name"]
-    if name is None:
-        name = _BACKEND["env"]
-        if name is None:
-            name = os.environ.get("SHEARMIX_KERNELS", "") or "numba"
-            if name not in BACKENDS:
-                raise KernelBackendError(f"SHEARMIX_KERNELS={name!r}: allowed are "
-                                         f"{', '.join(BACKENDS)}")
-            _BACKEND["env"] = name
-    return HAVE_NUMBA and name != "numpy"
+    """Whether the compiled kernels run."""
+    return _COMPILED[0]
 
 
 def _jit(fn):

@@ -5,22 +5,15 @@ round-off, :mod:`shearmix.solver.physics.tendency`). Block by block
 (:meth:`shearmix.solver.compute.transforms.SlabTransform.round_trip`) the physical fields live
 only in cache-sized blocks; with whole arrays each transform is one FFTW plan
 over the slab. The block-wise pass pays when the physical fields of all ranks
-on a node overflow the last-level cache, and only then (measured on a 2-core
-AMD EPYC with a 32 MiB L3, README "Performance": at 128^3 the block-wise pass
-made steps 14-27% faster on 1 and 2 ranks; at 64^3, where everything stays
-in cache, the whole-array pass was 5-15% faster).
+on a node overflow the last-level cache, and only then (docs/performance.md).
 
 Inside a virtual machine the last-level cache Linux reports is the host
-socket's, shared with cores the guest does not see: a 2-core Intel Xeon guest
-reports 480 MiB, and there at 128^3 the block-wise pass was 12-27% faster
-although the fields "fit" (README "Performance"). So the budget is the
+socket's, shared with cores the guest does not see, so the budget is the
 reported size capped at :data:`CACHE_CAP_PER_CPU` per CPU that shares it.
 """
 from __future__ import annotations
 
 import os
-
-PASS_CHOICES = ("blocks", "whole")
 
 #: assumed when the machine does not say (a common server L3 size)
 DEFAULT_CACHE_BYTES = 32 * 1024 ** 2
@@ -32,10 +25,6 @@ DEFAULT_CACHE_BYTES = 32 * 1024 ** 2
 #: of the whole-array ones at 64^3 (fields 10-17 MB) and 1.13-1.24 at 32^3
 #: (1.3-2.1 MB), so the budget there, 2 x 4 MiB, lies between.
 CACHE_CAP_PER_CPU = 4 * 1024 ** 2
-
-
-class PhysicalPassError(ValueError):
-    """An unknown ``SHEARMIX_PHYSICAL_PASS``; the message is one line."""
 
 
 def cpu_count_in_list(text: str) -> int:
@@ -81,14 +70,10 @@ def product_fields(model_has_T_advection: bool) -> int:
     return 8 if model_has_T_advection else 5
 
 
-def physical_pass(node_bytes: float) -> str:
-    """``'blocks'`` when the product fields of all ranks on a node (``node_bytes``)
-    overflow the last-level cache, else ``'whole'``; ``SHEARMIX_PHYSICAL_PASS``
-    (``blocks`` or ``whole``) overrides."""
-    choice = os.environ.get("SHEARMIX_PHYSICAL_PASS", "")
-    if choice:
-        if choice not in PASS_CHOICES:
-            raise PhysicalPassError(f"SHEARMIX_PHYSICAL_PASS={choice!r}: allowed are "
-                                    f"{', '.join(PASS_CHOICES)}")
-        return choice
+def choose_product_pass(setting: str, node_bytes: float) -> str:
+    """The pass ``compute.product_pass`` asks for: ``'blocks'`` or ``'whole'`` as
+    set, or for ``'auto'``, ``'blocks'`` when the product fields of all ranks on
+    a node (``node_bytes``) overflow the last-level cache, else ``'whole'``."""
+    if setting != "auto":
+        return setting
     return "blocks" if node_bytes > last_level_cache_bytes() else "whole"

@@ -6,7 +6,7 @@ Inverse: the same steps backwards. When all ranks share one node the
 transpose is no message at all: each rank writes its (y, z) transforms into a
 global array in MPI-3 shared memory and, after a barrier, transforms its own
 ky-columns over x straight out of it. Across nodes (or with
-``SHEARMIX_TRANSPOSE=alltoall``) it is an ``Alltoall`` whose outgoing blocks
+``transpose='alltoall'``, the case's ``compute.transpose``) it is an ``Alltoall`` whose outgoing blocks
 are described by an MPI vector type rather than packed. On one rank a single
 3D plan does it all. Plans are made once; FFTW wisdom is
 read from and saved to a cache file so later runs plan in milliseconds.
@@ -35,6 +35,7 @@ import tempfile
 import numpy as np
 import pyfftw
 
+from shearmix.solver.compute.options import ComputeOptionError
 from shearmix.solver.grid import Grid, true_runs
 
 #: bytes of one physical block of the round trip (a few fit in a core's L2 cache)
@@ -93,9 +94,12 @@ class SlabTransform:
     comm : communicator from :mod:`shearmix.solver.compute.parallel`
     threads : FFTW threads per rank
     effort : 'estimate', 'measure' or 'patient'
+    transpose : 'auto' (shared memory when all ranks share a node), 'shared'
+        (an error if they cannot) or 'alltoall' (:data:`shearmix.solver.compute.options.TRANSPOSES`)
     """
 
-    def __init__(self, grid: Grid, comm, threads: int = 1, effort: str = "measure"):
+    def __init__(self, grid: Grid, comm, threads: int = 1, effort: str = "measure",
+                 transpose: str = "auto"):
         self.grid = grid
         self.comm = comm
         flags = (_EFFORT_FLAG[effort],)
@@ -113,8 +117,12 @@ class SlabTransform:
             nxl, nyl, nzc = grid.nx_local, grid.ny_local, grid.nzc
             x0, y0 = grid.x_start, grid.y_start
             # on one node: two global (kx, ky, kz) arrays in shared memory, used in turn
-            shared = [comm.node_shared_array((nx, ny, nzc), np.complex128) for _ in range(2)]
+            shared = [comm.node_shared_array((nx, ny, nzc), np.complex128)
+                      for _ in range(2)] if transpose != "alltoall" else [None]
             self._shared = shared if all(a is not None for a in shared) else None
+            if transpose == "shared" and self._shared is None:
+                raise ComputeOptionError("compute.transpose: shared needs all ranks on one node "
+                                 "with MPI-3 shared memory; use auto or alltoall")
             if self._shared is not None:
                 self._rows = [a[x0:x0 + nxl] for a in self._shared]        # my x-slab
                 self._cols = [a[:, y0:y0 + nyl] for a in self._shared]     # my ky-columns

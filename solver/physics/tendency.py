@@ -18,7 +18,8 @@ from __future__ import annotations
 import numpy as np
 
 from shearmix.solver.compute import kernels
-from shearmix.solver.compute.productpass import PASS_CHOICES, physical_pass, product_fields
+from shearmix.solver.compute.options import PRODUCT_PASSES
+from shearmix.solver.compute.productpass import choose_product_pass, product_fields
 from shearmix.solver.compute.transforms import SlabTransform
 from shearmix.solver.grid import Grid, true_runs
 from shearmix.solver.physics.basis import CrayaHerring
@@ -28,27 +29,26 @@ from shearmix.solver.physics.terms import Advection, ShearForcing
 class PseudoSpectralTendency:
     """``N(y)`` for a stacked state ``y = [a, p(, T)]``; callable as ``(y, t, out)``.
 
-    ``physical_pass_kind``: ``'blocks'``, ``'whole'`` or None (choose by
-    :func:`shearmix.solver.compute.productpass.physical_pass`).
+    ``product_pass``: ``'blocks'``, ``'whole'`` or ``'auto'`` (choose by
+    :func:`shearmix.solver.compute.productpass.choose_product_pass`).
     """
 
     def __init__(self, grid: Grid, basis: CrayaHerring, transform: SlabTransform,
                  fields, advection: Advection | None, forcing: ShearForcing | None,
-                 physical_pass_kind: str | None = None):
+                 product_pass: str = "auto"):
         self.grid, self.basis, self.fft = grid, basis, transform
         self.fields = tuple(fields)
         self.advection = advection
         self.has_T = "T" in self.fields
         self.with_T = self.has_T and advection is not None and advection.with_temperature
         n_products = product_fields(self.with_T)
-        if physical_pass_kind is None:
-            nx, ny, nz = grid.physical_shape
-            physical_pass_kind = physical_pass(
-                n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node())
-        if physical_pass_kind not in PASS_CHOICES:
-            raise ValueError(f"physical pass {physical_pass_kind!r}: allowed are "
-                             f"{', '.join(PASS_CHOICES)}")
-        self.blocks = physical_pass_kind == "blocks"
+        if product_pass not in PRODUCT_PASSES:
+            raise ValueError(f"compute.product_pass: must be one of "
+                             f"{', '.join(PRODUCT_PASSES)}, got {product_pass!r}")
+        nx, ny, nz = grid.physical_shape
+        self.blocks = choose_product_pass(
+            product_pass, n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node()) \
+            == "blocks"
         # the transform's own planning buffers serve as work arrays
         self.product = transform.physical
         # transforms of the products; P[0] doubles as the inverse transforms' input

@@ -108,12 +108,12 @@ def test_round_trip_needs_its_plans():
         fft.round_trip([fft.spectral], [fft.spectral])
 
 
-def _tendency_both_ways(make_case, monkeypatch, model, params):
-    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 12},
-                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
+def _tendency_both_ways(make_case, model, params, kernels="numba"):
     out = {}
     for kind in ("whole", "blocks"):
-        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 12},
+                         initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4},
+                         compute={"product_pass": kind, "kernels": kernels})
         sim = Simulation(case)
         assert sim.tendency.blocks == (kind == "blocks")
         sim.tendency.want_speed = True
@@ -123,10 +123,11 @@ def _tendency_both_ways(make_case, monkeypatch, model, params):
     return out
 
 
+@pytest.mark.parametrize("kernels", ["numba", "numpy"])
 @pytest.mark.parametrize("model,params", [("lowpe", {"Re": 50.0, "BPe": 2.0}),
                                           ("boussinesq", {"Re": 50.0, "B": 2.0, "Pr": 0.5})])
-def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, monkeypatch, model, params):
-    out = _tendency_both_ways(make_case, monkeypatch, model, params)
+def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, model, params, kernels):
+    out = _tendency_both_ways(make_case, model, params, kernels)
     (nw, cw, sw, fw), (nb, cb, sb, fb) = out["whole"], out["blocks"]
     scale = np.abs(nw).max()
     assert scale > 1e-3
@@ -140,13 +141,12 @@ def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, monkeypatch, 
             assert np.abs(a - b).max() < 1e-12 * max(np.abs(a).max(), 1.0)
 
 
-def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
-    case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
-                     grid={"Nx": 16, "Ny": 16, "Nz": 8},
-                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
+def test_steps_by_blocks_follow_the_whole_array_pass(make_case):
     states = {}
     for kind in ("whole", "blocks"):
-        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
+                         grid={"Nx": 16, "Ny": 16, "Nz": 8}, compute={"product_pass": kind},
+                         initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
         sim = Simulation(case)
         for _ in range(20):
             sim.advance()
@@ -156,22 +156,16 @@ def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
     assert np.abs(a - b).max() < 1e-10 * np.abs(a).max()
 
 
-def test_physical_pass_follows_the_cache(monkeypatch):
-    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
+def test_product_pass_follows_the_cache(monkeypatch):
     monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda: 1000)
-    assert productpass.physical_pass(1000) == "whole"
-    assert productpass.physical_pass(1001) == "blocks"
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
-    assert productpass.physical_pass(10 ** 12) == "whole"
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
-    with pytest.raises(productpass.PhysicalPassError,
-                       match="SHEARMIX_PHYSICAL_PASS='tiles'.*blocks, whole"):
-        productpass.physical_pass(1)
+    assert productpass.choose_product_pass("auto", 1000) == "whole"
+    assert productpass.choose_product_pass("auto", 1001) == "blocks"
+    assert productpass.choose_product_pass("whole", 10 ** 12) == "whole"
+    assert productpass.choose_product_pass("blocks", 1) == "blocks"
 
 
 def test_tendency_counts_the_fields_of_all_ranks_on_the_node(make_case, monkeypatch):
     """5 product fields (low-Peclet) of the whole 16^3 grid on one rank: 163840 bytes."""
-    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
     case = make_case()
     for cache, kind in ((5 * 16 ** 3 * 8, "whole"), (5 * 16 ** 3 * 8 - 1, "blocks")):
         monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda c=cache: c)
@@ -214,14 +208,14 @@ def test_reported_cache_capped_per_cpu_sharing_it(tmp_path):
 
 
 @pytest.mark.parametrize("scheme", ["cb3c", "ars343"])
-def test_owned_output_zeroed_once_changes_nothing(make_case, monkeypatch, scheme):
+def test_owned_output_zeroed_once_changes_nothing(make_case, scheme):
     """The chunked pass writes the zeros outside the kept ky of the stepper's own
     register once (and the low-storage stage copies the band only): the same
     states, bit for bit, as rezeroing and copying everything each time, with the
     low-storage driver and with the reference driver's fresh stage arrays."""
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
                      grid={"Nx": 16, "Ny": 12, "Nz": 8}, time={"scheme": scheme},
+                     compute={"product_pass": "blocks"},
                      initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 8})
     fast, plain = Simulation(case), Simulation(case)
     assert fast.tendency.chunked and fast.tendency.owned_output is fast._n0
@@ -236,17 +230,17 @@ def test_owned_output_zeroed_once_changes_nothing(make_case, monkeypatch, scheme
     assert np.array_equal(fast.state, plain.state)
 
 
-def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
+def test_forcing_in_a_dropped_row_does_not_pile_up(make_case):
     """A forcing wavenumber past the 2/3-rule cutoff (kf = 6 on Ny = 16, cutoff 5;
     case files refuse it, the tendency does not rely on that) lands in a row the
     chunked pass does not write: that row of the stepper's register is rezeroed
     every evaluation, so it holds one forcing, not several."""
     from shearmix.solver.physics.tendency import PseudoSpectralTendency
     from shearmix.solver.physics.terms import ShearForcing
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
-    sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3}))
+    sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3},
+                               compute={"product_pass": "blocks"}))
     nl = PseudoSpectralTendency(sim.grid, sim.basis, sim.fft, sim.fields, sim.model.advection,
-                                ShearForcing(F0=1.0, kf=6.0))
+                                ShearForcing(F0=1.0, kf=6.0), product_pass="blocks")
     assert nl.chunked and nl._forcing_in_gaps
     assert not sim.tendency._forcing_in_gaps      # the case's own forcing is kept
     nl.owned_output = out = np.zeros_like(sim.state)
