@@ -50,28 +50,6 @@ def test_numba_and_numpy_diagnostics_agree(make_case, model, params):
 
 
 @pytest.mark.parametrize("backend", ["numba", "numpy"])
-@pytest.mark.parametrize("layout", ["separate", "second_over_f", "both_over_inputs"])
-def test_stress_pair_matches_plain_arithmetic(backend, layout):
-    """``f^2 - g^2`` and ``f g`` in one pass, also written over its own inputs."""
-    rng = np.random.default_rng(7)
-    f0, g0 = rng.standard_normal((2, 6, 5, 4))
-    f, g = f0.copy(), g0.copy()
-    if layout == "separate":
-        first, second = np.empty_like(f), np.empty_like(f)
-    elif layout == "second_over_f":
-        first, second = np.empty_like(f), f
-    else:
-        first, second = f, g
-    kernels.set_backend(backend)
-    try:
-        kernels.stress_pair(f, g, first, second)
-    finally:
-        kernels.set_backend("numba")
-    np.testing.assert_allclose(first, f0 * f0 - g0 * g0, rtol=1e-15, atol=1e-15)
-    np.testing.assert_allclose(second, f0 * g0, rtol=1e-15, atol=1e-15)
-
-
-@pytest.mark.parametrize("backend", ["numba", "numpy"])
 def test_fused_stresses_and_scalar_fluxes_match_plain_arithmetic(backend):
     """The block-wise pass's fused products: five stresses from u, v, w (three of
     them over the velocity) and three fluxes of T (one over T)."""
