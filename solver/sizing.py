@@ -19,24 +19,22 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float
     array 8, a real spectral array 4. Counted: the three stepper registers
     (solution, stage, tendency) of ``nfields`` spectral fields; the implicit
     coefficient arrays (2 for the low-Peclet model, 4 for the full one); the
-    transform's physical planning buffer. With whole arrays (``blocks``
-    False): the velocity (and temperature) physical arrays, a second product
-    array beside the planning buffer, five spectral product transforms and,
-    on several ranks, the two shared transpose arrays. Block-wise: one spectral array per product field (5,
-    or 8 with temperature) and, on several ranks, as many shared arrays.
-    Measured by ``scripts/bench`` at 128^3, net of the interpreter: whole
-    arrays 138 (lowpe) and 175 (boussinesq) bytes per point against 128 and
-    168 from this count; block-wise 115 and 168 against 104 and 160.
+    transform's physical planning buffer; one spectral array per product
+    field (5, or 8 with temperature). With whole arrays (``blocks`` False):
+    as many physical arrays (one of them the planning buffer) and, on several
+    ranks, the two shared transpose arrays. Block-wise: on several ranks, one
+    shared array per product field (docs/performance.md compares this count
+    with measured figures).
     """
     spectral, physical, real_spectral = 8.0, 8.0, 4.0
     full = nfields == 3
     total = 3 * nfields * spectral + (4 if full else 2) * real_spectral + physical
+    products = product_fields(full)
+    total += products * spectral
     if blocks:
-        products = product_fields(full)
-        total += products * spectral
         total += products * spectral if ranks > 1 else 0
     else:
-        total += (3 + (1 if full else 0) + 1) * physical + 5 * spectral
+        total += (products - 1) * physical
         total += 2 * spectral if ranks > 1 else 0
     return total
 

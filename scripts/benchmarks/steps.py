@@ -93,20 +93,22 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
         # as in the step: the x-FFTs by chunks of rows, made and handed on by
         # nothing here (the buffers hold the last chunks' modes: finite numbers)
         pass_on = (lambda chunks, lo, hi: None) if nl.chunked else None
+        trip = nl.products_pass.trip
 
         def transforms_alone():
             for _ in range(n_trips):
-                fft.round_trip(nl.P[:m], nl.P[:k], None, pass_on, pass_on)
+                trip(nl.P[:m], nl.P[:k], None, pass_on, pass_on)
     else:
-        # whole-array pass: inverse into the velocity (and T) work arrays,
-        # forward from the product buffer into the product transforms
-        targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
+        # whole-array pass: inverse into its physical fields, forward from them
+        # into its spectral arrays
+        fields = nl.products_pass.fields
 
         def transforms_alone():
             for i in range(n_inv):
-                fft.inverse(nl.scratch, targets[i % len(targets)])
+                fft.inverse(nl.scratch, fields[i % len(fields)])
             for i in range(n_fwd):
-                (fft.forward_band if i < n_band else fft.forward)(nl.product, nl.P[i % len(nl.P)])
+                (fft.forward_band if i < n_band else fft.forward)(fields[i % len(fields)],
+                                                                  nl.P[i % len(nl.P)])
 
     # steps and floors alternate, so that a change in the machine's load during
     # the run weighs on both medians alike (the machine may be shared)
@@ -164,26 +166,6 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
     whole, blocks = times["whole"], times["blocks"]
     return {"model": model, "n": n, "ranks": comm.size, "whole_seconds": whole,
             "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
-
-
-def schedule_worker(model: str, n: int, steps: int) -> dict | None:
-    """The round trip's blocks claimed from a node counter (dynamic) against each
-    rank on its own x-planes (static), steps alternating in one process."""
-    from shearmix.solver.compute.parallel import world
-    from shearmix.solver.run.simulation import Simulation
-    comm = world()
-    # the schedules are the round trip's: block-wise whatever the size
-    sims = {kind: Simulation(_case(model, n, steps, product_pass="blocks"), comm)
-            for kind in ("static", "dynamic")}
-    sims["static"].fft.dynamic_blocks = False
-    times = _alternating_steps(sims, steps, comm)
-    if comm.rank != 0:
-        return None
-    return {"model": model, "n": n, "ranks": comm.size,
-            "product_pass": "blocks" if sims["dynamic"].tendency.blocks else "whole",
-            "static_seconds": times["static"],
-            "dynamic_seconds": times["dynamic"],
-            "dynamic_vs_static": times["dynamic"] / times["static"]}
 
 
 def _alternating_steps(sims: dict, steps: int, comm) -> dict:
@@ -337,7 +319,8 @@ def markdown(report: dict) -> str:
         lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | {r['step_seconds']:.4f} "
                      f"| {r['floor_seconds']:.4f} | {r['ratio']:.2f} | {r['ratio_cpu']:.2f} "
                      f"| {r['transforms_per_step']} | {r['first_step_seconds']:.2f} "
-                     f"| {r['bytes_per_point_net']:.0f} | {r.get('product_pass', r.get('physical_pass', ''))} |")
+                     f"| {r['bytes_per_point_net']:.0f} "
+                     f"| {r.get('product_pass', r.get('physical_pass', ''))} |")
     one = {(r["model"], r["n"]): r for r in report["records"] if r["ranks"] == 1}
     two = [r for r in report["records"] if r["ranks"] == 2 and (r["model"], r["n"]) in one]
     if two:
@@ -366,12 +349,6 @@ def markdown(report: dict) -> str:
         lines += ["", f"Where a step's time goes at {phases[0]['n']}^3, ms per step "
                   "(`--phases`; '#k' is rank k, '2/1' the slowest rank of 2 against 1 rank):",
                   "", "```", *phases_table(phases), "```"]
-    sched = [v for k, v in extras.items() if k.startswith("schedule_")]
-    if sched:
-        lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} ranks: blocks claimed "
-                         f"dynamically {v['dynamic_seconds']:.3f} s, each rank its own planes "
-                         f"{v['static_seconds']:.3f} s per step ({v['dynamic_vs_static']:.3f})"
-                         for v in sched]
     passes = [v for k, v in extras.items() if k.startswith("passes_")]
     if passes:
         lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} rank(s): block-wise "
@@ -416,10 +393,6 @@ def main(argv=None) -> int:
     ap.add_argument("--product-pass", choices=PRODUCT_PASSES, default="auto",
                     help="how the products are made in the timed runs (compute.product_pass)")
     ap.add_argument("--phases-worker", nargs=6, help=argparse.SUPPRESS)
-    ap.add_argument("--schedule", action="store_true",
-                    help="also compare the round trip's blocks claimed dynamically with "
-                         "each rank on its own planes (largest size and rank count)")
-    ap.add_argument("--schedule-worker", nargs=6, help=argparse.SUPPRESS)
     ap.add_argument("--worker", nargs=6, help=argparse.SUPPRESS)
     ap.add_argument("--passes-worker", nargs=6, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
@@ -430,8 +403,7 @@ def main(argv=None) -> int:
     # inside an MPI job launched by launch(): one worker, its record on rank 0
     jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]), w[5]),
             "passes_worker": lambda w: passes_worker(w[0], int(w[1]), int(w[2])),
-            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2]), w[5]),
-            "schedule_worker": lambda w: schedule_worker(w[0], int(w[1]), int(w[2]))}
+            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2]), w[5])}
     for name, job in jobs.items():
         if getattr(args, name):
             rec = job(getattr(args, name))
@@ -502,11 +474,6 @@ def main(argv=None) -> int:
                  "block-wise against whole-array products",
                  lambda r: f"whole {r['whole_seconds']:.4f} s, blocks {r['blocks_seconds']:.4f} s, "
                            f"ratio {r['blocks_vs_whole']:.3f}")
-    if args.schedule:
-        _compare(args, extras, "schedule", max(args.sizes), [max(args.ranks)],
-                 "blocks claimed from a node counter against each rank on its own planes",
-                 lambda r: f"static {r['static_seconds']:.4f} s, dynamic "
-                           f"{r['dynamic_seconds']:.4f} s, ratio {r['dynamic_vs_static']:.3f}")
     if args.phases:
         n = max(args.sizes)
         print(f"\nwhere a step's time goes at {n}^3 (ms per step, mean of {args.steps} steps; "

@@ -6,8 +6,8 @@ job is one compiled loop over the spectral (or physical) slab that reads and
 writes each element once. The NumPy versions define the arithmetic; the
 Numba versions must agree with them to round-off (tests/solver/test_kernels.py).
 
-The backend is the case's ``compute.kernels`` (:class:`shearmix.solver.compute.options.ComputeOptions`),
-set by the simulation with :func:`set_backend`; the NumPy versions run when
+The backend is the case's ``compute.kernels``
+(:class:`shearmix.solver.compute.options.ComputeOptions`), set by the simulation with :func:`set_backend`; the NumPy versions run when
 Numba is not installed. Compiled kernels are cached on disk (``cache=True``) so
 later runs start in well under a second.
 """
@@ -198,7 +198,7 @@ def scalar_advection(P, mask, scale, band, kvec, out):
 def velocity_rows(a, p, basis, band, u, v, w, lo, hi) -> None:
     """:func:`velocity` for the local ky rows ``lo:hi`` only, compiled only: ``u, v,
     w`` are ``(nx, hi - lo, nz_kept)`` arrays (what
-    :meth:`shearmix.solver.compute.transforms.SlabTransform.round_trip` hands its ``start``),
+    :class:`shearmix.solver.compute.roundtrip.RoundTrip` hands its ``start``),
     zero at the dropped kx."""
     keepx, keepy, nkz = band
     _velocity_nb(a[:, lo:hi], p[:, lo:hi], basis.s[:, lo:hi], basis.c[:, lo:hi],
@@ -210,7 +210,7 @@ def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> N
     ``out[2]`` unless None) for the local ky rows ``lo:hi`` only, compiled only.
 
     The transforms are ``(nx, hi - lo, nz_kept)`` arrays of those rows (what
-    :meth:`shearmix.solver.compute.transforms.SlabTransform.round_trip` hands its ``finish``);
+    :class:`shearmix.solver.compute.roundtrip.RoundTrip` hands its ``finish``);
     ``out`` is the whole tendency, of which rows ``lo:hi`` are written (zero
     past the kz cutoff and at the dropped kx), the rest left alone.
     """

@@ -10,9 +10,10 @@ import sys
 import numpy as np
 
 from shearmix.solver.case import case_from_dict  # noqa: E402
-from shearmix.solver.compute import kernels, transforms  # noqa: E402
+from shearmix.solver.compute import kernels, roundtrip  # noqa: E402
 from shearmix.solver.compute.parallel import world  # noqa: E402
 from shearmix.solver.compute.phaseclock import PhaseClock  # noqa: E402
+from shearmix.solver.compute.roundtrip import RoundTrip  # noqa: E402
 from shearmix.solver.compute.transforms import SlabTransform  # noqa: E402
 from shearmix.solver.grid import Grid  # noqa: E402
 from shearmix.solver.run.simulation import Simulation  # noqa: E402
@@ -52,18 +53,17 @@ def check_fft(out, transpose):
         spec /= field.size
         back = fft.inverse(spec, fft.empty_physical())
         err_back = max(err_back, comm.max(float(np.abs(back - p).max())))
-    err_trip = check_round_trip(comm, grid, fft, phys, fields)
-    unused_change = check_trip_leaves_unused_rows(comm, grid, fft, phys)
+    trip, err_trip = check_round_trip(comm, grid, fft, phys, fields)
+    unused_change = check_trip_leaves_unused_rows(comm, grid, fft, phys, trip)
     # with Alltoall transposes the round trip claims no blocks: -1 if it has no counter
-    counter = (check_counter(comm) if fft._shared is not None
-               else -1 if "counter" not in fft._trip else 0)
+    counter = (check_counter(comm) if fft.transpose.kind == "shared"
+               else -1 if getattr(fft.transpose, "counter", None) is None else 0)
     if comm.rank == 0:
         err = max(np.abs(full - np.fft.rfftn(f)).max() / np.abs(np.fft.rfftn(f)).max()
                   for full, f in zip(fulls, fields))
         np.savez(out, err_forward=err, err_inverse=err_back, err_band=err_band, size=comm.size,
                  err_round_trip=err_trip, counter=counter, unused_change=unused_change,
-                 transpose="shared" if getattr(fft, "_shared", None) is not None
-                 else "alltoall")
+                 transpose=fft.transpose.kind)
 
 
 def check_counter(comm):
@@ -96,11 +96,12 @@ def _products(blocks):
 
 
 def check_round_trip(comm, grid, fft, phys, fields):
-    """Two round trips in a row (the shared arrays reused), after plain transforms,
-    in blocks of at most two x-planes; relative error inside the band on rank 0."""
+    """Three round trips in a row (the shared arrays reused, the node counter's two
+    slots in turn), after plain transforms, in blocks of at most two x-planes;
+    the trip and the relative error inside the band on rank 0."""
     nx, ny, nz = grid.shape
-    transforms.BLOCK_BYTES = 2 * ny * nz * 8
-    fft.prepare_round_trip(5)
+    roundtrip.BLOCK_BYTES = 2 * ny * nz * 8
+    trip = RoundTrip(fft, 5)
     nkz = grid.nz_kept
     cut = []
     cy = grid.cutoff[1]
@@ -113,10 +114,7 @@ def check_round_trip(comm, grid, fft, phys, fields):
     expected = [np.fft.rfftn(f) for f in (u, v, v * w, u * v, u * u - w * w)]
     keep = Grid(grid.shape, grid.lengths).dealias
     err = 0.0
-    # two trips with the blocks claimed from the node counter (its two slots in
-    # turn), then one with each rank on its own planes
-    for dynamic in (True, True, False):
-        fft.dynamic_blocks = dynamic
+    for _ in range(3):
         specs = []
         for p in phys:
             s = fft.forward(p, fft.empty_spectral())
@@ -125,36 +123,35 @@ def check_round_trip(comm, grid, fft, phys, fields):
             s[:, :, nkz:] = 1e3   # never read
             specs.append(s)
         outs = specs + [fft.empty_spectral() for _ in range(2)]
-        fft.round_trip(specs, outs, _products)
+        trip(specs, outs, _products)
         for got, ref in zip(outs, expected):
             full = gather_spectral(comm, got.copy())
             if comm.rank == 0:
                 keep3 = np.broadcast_to(keep, ref.shape)
                 err = max(err, np.abs(full - ref)[keep3].max() / np.abs(ref).max())
-    return err
+    return trip, err
 
 
-def check_trip_leaves_unused_rows(comm, grid, fft, phys):
+def check_trip_leaves_unused_rows(comm, grid, fft, phys, trip):
     """A round trip of 3 fields in a trip made for 5 (check_round_trip): the
     largest change it makes to the rows of fields 4 and 5 (0: it transforms its
-    own fields only), with blocks claimed dynamically and each rank on its planes;
-    1 if the ranks' work (phase clock) does not add up to one rank's."""
+    own fields only), twice (both counter slots); 1 if the ranks' work (phase
+    clock) does not add up to one rank's."""
     nkz = grid.nz_kept
     change = 0.0
-    for dynamic in (True, False):
-        fft.dynamic_blocks = dynamic
+    for _ in range(2):
         specs = []
         for p in phys:
             s = fft.forward(p, fft.empty_spectral())
             s[:, ~grid.keep_y, :] = 0
             s[:, :, nkz:] = 0
             specs.append(s)
-        unused = fft._trip["rows"][3:]
+        unused = trip.plan.rows[3:]
         for rows in unused:
             rows[:, :, :nkz] = 5.0 + 1.0j
         comm.barrier()
         clock = fft.clock = PhaseClock()
-        fft.round_trip(specs, specs, _products)
+        trip(specs, specs, _products)
         fft.clock = None
         for rows in unused:
             change = max(change, comm.max(float(np.abs(rows[:, :, :nkz] - (5.0 + 1.0j)).max())))
@@ -187,7 +184,7 @@ def run_steps(model, nsteps, out, paths):
         sim = Simulation(case, comm)
         used = ("blocks" if sim.tendency.blocks else "whole",
                 "single" if comm.size == 1 else
-                "shared" if sim.fft._shared is not None else "alltoall",
+                sim.fft.transpose.kind,
                 "numba" if kernels.use_numba() else "numpy")
         sim.add_mode(1, 1, 1, "poloidal", 0.2)
         for _ in range(nsteps):

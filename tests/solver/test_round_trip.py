@@ -3,8 +3,9 @@ against numpy.fft, and the tendency made by blocks against the whole-array pass.
 import numpy as np
 import pytest
 
-from shearmix.solver.compute import productpass, transforms
+from shearmix.solver.compute import productpass, roundtrip
 from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.compute.roundtrip import RoundTrip, block_planes
 from shearmix.solver.compute.transforms import SlabTransform
 from shearmix.solver.grid import Grid
 from shearmix.solver.run.simulation import Simulation
@@ -20,11 +21,11 @@ def _products(blocks):
 @pytest.mark.parametrize("shape", [(12, 8, 10), (16, 18, 8)])
 def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
     # blocks of two x-planes, so that the sweep really goes block by block
-    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    monkeypatch.setattr(roundtrip, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
     grid = Grid(shape, (1.0, 2.0, 3.0))
     fft = SlabTransform(grid, SerialComm(), effort="estimate")
-    fft.prepare_round_trip(5)
-    assert fft.block_planes == 2
+    trip = RoundTrip(fft, 5)
+    assert block_planes(grid) == trip.plan.planes == 2
     rng = np.random.default_rng(5)
     nkz = grid.nz_kept
     spectra = [np.fft.rfftn(rng.standard_normal(shape)) for _ in range(3)]
@@ -37,7 +38,7 @@ def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
     for s, full in zip(spec, spectra):
         s[...] = full / np.prod(shape)   # normalised amplitudes, as the tendency's
         s[:, :, nkz:] = 1e3              # ... and never reads them
-    fft.round_trip(spec[:3], spec, _products)
+    trip(spec[:3], spec, _products)
     u, v, w = fields
     expected = [u, v, v * w, u * v, u * u - w * w]
     keep = np.broadcast_to(grid.dealias, spec[0].shape)
@@ -54,11 +55,11 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
     (smallest buffers) or whole kept runs, each chunk the numpy.fft transform of
     the products inside the 2/3-rule band."""
     shape = (12, 16, 10)
-    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
-    monkeypatch.setattr(transforms, "CHUNK_BYTES", chunk_bytes)
+    monkeypatch.setattr(roundtrip, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    monkeypatch.setattr(roundtrip, "CHUNK_BYTES", chunk_bytes)
     grid = Grid(shape, (1.0, 2.0, 3.0))
     fft = SlabTransform(grid, SerialComm(), effort="estimate")
-    fft.prepare_round_trip(5)
+    trip = RoundTrip(fft, 5)
     rng = np.random.default_rng(6)
     nkz, cy = grid.nz_kept, grid.cutoff[1]
     spectra = [np.fft.rfftn(rng.standard_normal(shape)) for _ in range(3)]
@@ -79,7 +80,7 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
             assert np.abs(got - ref[:, lo:hi])[keep].max() < 1e-12 * np.abs(ref).max()
         seen.extend(range(lo, hi))
 
-    fft.round_trip(spec[:3], spec, _products, finish)
+    trip(spec[:3], spec, _products, finish)
     assert seen == list(np.flatnonzero(grid.keep_y))
     # the inputs made a chunk at a time too (start): the same products
     made = []
@@ -96,16 +97,17 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
         w_[...] = 7.0   # work arrays only: what they hold is not read
     for sp in work[:3]:
         sp[:, ~grid.keep_y] = 0   # (but the rows outside the kept ky stay zero)
-    fft.round_trip(work[:3], work, _products, finish, start)
+    trip(work[:3], work, _products, finish, start)
     assert made == seen == list(np.flatnonzero(grid.keep_y))
-    widths = {hi - lo for lo, hi in fft._trip["chunks"]}
+    widths = {hi - lo for lo, hi in trip.plan.chunks}
     assert widths == ({1} if chunk_bytes == 1 else {cy + 1, cy})
 
 
-def test_round_trip_needs_its_plans():
+def test_round_trip_refuses_more_fields_than_planned():
     fft = SlabTransform(Grid((8, 8, 8), (1.0, 1.0, 1.0)), SerialComm(), effort="estimate")
-    with pytest.raises(RuntimeError, match="prepare_round_trip"):
-        fft.round_trip([fft.spectral], [fft.spectral])
+    trip = RoundTrip(fft, 1)
+    with pytest.raises(ValueError, match="round trip of 2 fields, planned for 1"):
+        trip([fft.spectral], [fft.spectral, fft.empty_spectral()])
 
 
 def _tendency_both_ways(make_case, model, params, kernels="numba"):

@@ -96,16 +96,3 @@ def test_phases_on_two_ranks_include_the_waits():
     # the two ranks' work adds up to one rank's: 4 fields in, 8 out, 16 planes
     for phase, planes in (("yz inverse", 4 * 4 * 16), ("yz forward", 4 * 8 * 16)):
         assert sum(w[phase] for w in rec["work_per_step"]) == planes
-
-
-@pytest.mark.mpi
-def test_schedule_worker_compares_claimed_and_own_planes():
-    from steps import launch
-    # the worker makes block-wise simulations whatever the size or the caller asks
-    rec = launch("lowpe", 16, 2, 2, worker="--schedule-worker", product_pass="whole")
-    assert rec["ranks"] == 2 and rec["static_seconds"] > 0 and rec["dynamic_seconds"] > 0
-    assert rec["product_pass"] == "blocks"
-    assert rec["dynamic_vs_static"] == rec["dynamic_seconds"] / rec["static_seconds"]
-    text = markdown({"version": "x", "machine": "m", "records": [],
-                     "extras": {"schedule_lowpe_2": rec}})
-    assert "- lowpe 16^3, 2 ranks: blocks claimed dynamically" in text
