@@ -20,8 +20,8 @@ from typing import Any, Callable
 
 import yaml
 
-from shearmix.solver.compute.options import (FFTW_EFFORTS, KERNEL_BACKENDS, PRODUCT_PASSES,
-                                             TRANSPOSES)
+from shearmix.solver.compute.options import (DEFAULT_WISDOM, FFTW_EFFORTS, KERNEL_BACKENDS,
+                                             PRODUCT_PASSES, TRANSPOSES)
 from shearmix.solver.grid import dealias_cutoff
 
 MODELS = ("boussinesq", "lowpe")
@@ -139,7 +139,7 @@ SCHEMA: dict[str, Key] = {
                            "else the node's cores over its ranks)", lower=1),
     "compute.fftw_effort": Key("choice", "measure", "FFTW planning effort",
                                choices=FFTW_EFFORTS),
-    "compute.wisdom": Key("str", "~/.cache/shearmix/fftw-wisdom",
+    "compute.wisdom": Key("str", DEFAULT_WISDOM,
                           "FFTW wisdom cache file ('' disables it)"),
     "compute.product_pass": Key("choice", "auto", "how the advection's products are made: "
                                 "blocks of x-planes, whole arrays, or auto (blocks when the "

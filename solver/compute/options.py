@@ -21,6 +21,8 @@ TRANSPOSES = ("auto", "shared", "alltoall")
 #: ``compute.kernels``: compiled (Numba, NumPy when it is not installed) or NumPy
 KERNEL_BACKENDS = ("numba", "numpy")
 FFTW_EFFORTS = ("estimate", "measure", "patient")
+#: ``compute.wisdom``: where FFTW plans are cached between runs ('' for nowhere)
+DEFAULT_WISDOM = "~/.cache/shearmix/fftw-wisdom"
 
 
 class ComputeOptionError(ValueError):
@@ -35,15 +37,15 @@ class ComputeOptions:
     transpose: str = "auto"
     kernels: str = "numba"
     fftw_effort: str = "measure"
-    wisdom: str = ""
+    wisdom: str = DEFAULT_WISDOM
 
     def __post_init__(self):
         for name, allowed in (("product_pass", PRODUCT_PASSES), ("transpose", TRANSPOSES),
                               ("kernels", KERNEL_BACKENDS), ("fftw_effort", FFTW_EFFORTS)):
             value = getattr(self, name)
             if value not in allowed:
-                raise ComputeOptionError(f"compute.{name}: must be one of {', '.join(allowed)}, "
-                                 f"got {value!r}")
+                raise ComputeOptionError(f"compute.{name}: must be one of "
+                                         f"{', '.join(allowed)}, got {value!r}")
 
     @classmethod
     def from_case(cls, case) -> "ComputeOptions":

@@ -57,3 +57,24 @@ def test_no_engine_module_reads_the_compute_switches():
                     if var in text:
                         found.append((name, var))
     assert found == []
+
+
+class _TwoRanksApart:
+    """Two ranks that share no memory (as on two nodes): no shared arrays."""
+
+    rank, size, is_mpi = 0, 2, True
+
+    def ranks_on_node(self):
+        return 1
+
+    def node_shared_array(self, shape, dtype):
+        return None
+
+
+def test_shared_transpose_where_memory_cannot_be_shared_is_refused():
+    from shearmix.solver.compute.transforms import SlabTransform
+    from shearmix.solver.grid import Grid
+    grid = Grid((8, 8, 8), (1.0, 1.0, 1.0), 0, 2)
+    with pytest.raises(ComputeOptionError, match=r"^compute.transpose: shared needs all ranks "
+                                                 r"on one node"):
+        SlabTransform(grid, _TwoRanksApart(), effort="estimate", transpose="shared")
