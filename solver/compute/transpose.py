@@ -21,7 +21,21 @@ import pyfftw
 from shearmix.solver.compute.options import ComputeOptionError
 
 
-class SingleRank:
+class _Transpose:
+    """What the round trip asks of every kind; here, of ranks that each keep to
+    their own x-planes and hold their inputs' rows themselves."""
+
+    def start_targets(self, inputs, plan):
+        return inputs
+
+    def block_starts(self, plan, rows_in, rows_out):
+        return rows_in, rows_out, range(0, self.fft.grid.nx_local, plan.planes)
+
+    def end_trip(self, clock):
+        pass
+
+
+class SingleRank(_Transpose):
     """One rank: the slab is the whole grid and the x-FFT runs on it in place."""
 
     kind = "single"
@@ -68,23 +82,14 @@ class SingleRank:
             plan.x_inverse_in_place(spec, clock)
         return inputs, outputs
 
-    def start_targets(self, inputs, plan):
-        return inputs
-
     def after_start(self, inputs, outputs, plan):
         return inputs, outputs
-
-    def block_starts(self, plan, rows_in, rows_out):
-        return rows_in, rows_out, range(0, self.fft.grid.nx_local, plan.planes)
 
     def to_columns(self, outputs, plan, clock):
         return outputs
 
-    def end_trip(self, clock):
-        pass
 
-
-class _Slabs:
+class _Slabs(_Transpose):
     """The (y, z) and x plans of several ranks, between x-slab rows and ky-columns."""
 
     def _plan(self, fft, flags, threads, mid_out, x_in):
@@ -265,7 +270,6 @@ class Alltoall(_Slabs):
         self._mid = pyfftw.empty_aligned((g.nx_local, g.shape[1], g.nzc), dtype=np.complex128)
         self._exchange = fft.comm.slab_exchange(g.nx_local, g.shape[1], g.nzc)
         self._plan(fft, flags, threads, self._mid, fft.spectral)
-        self._trip_rows = []
 
     # ------------------------------------------------------------ plain transforms
     def band_source(self, flags, threads):
@@ -296,24 +300,15 @@ class Alltoall(_Slabs):
             self._exchange.to_x_slabs(spec, mid)
         return plan.rows[:len(inputs)], plan.rows[:len(outputs)]
 
-    def start_targets(self, inputs, plan):
-        return inputs
-
     def after_start(self, inputs, outputs, plan):
         for spec, mid in zip(inputs, plan.rows):
             self._exchange.to_x_slabs(spec, mid)
         return plan.rows[:len(inputs)], plan.rows[:len(outputs)]
 
-    def block_starts(self, plan, rows_in, rows_out):
-        return rows_in, rows_out, range(0, self.fft.grid.nx_local, plan.planes)
-
     def to_columns(self, outputs, plan, clock):
         for mid, spec in zip(plan.rows, outputs):
             self._exchange.to_y_slabs(mid, spec)
         return outputs
-
-    def end_trip(self, clock):
-        pass
 
 
 def transpose_for(fft, flags, threads, choice: str):
