@@ -92,12 +92,14 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
 
         # as in the step: the x-FFTs by chunks of rows, made and handed on by
         # nothing here (the buffers hold the last chunks' modes: finite numbers)
-        pass_on = (lambda chunks, lo, hi: None) if nl.chunked else None
         trip = nl.products_pass.trip
+
+        def pass_on(*chunks_and_rows):
+            pass
 
         def transforms_alone():
             for _ in range(n_trips):
-                trip(nl.P[:m], nl.P[:k], None, pass_on, pass_on)
+                trip(nl.P[:m], nl.P[:k], pass_on, pass_on, pass_on)
     else:
         # whole-array pass: inverse into its physical fields, forward from them
         # into its spectral arrays

@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import os
 
+import numpy as np
+
 from shearmix.solver.compute.roundtrip import RoundTrip
 from shearmix.solver.grid import true_runs
 
@@ -121,8 +123,10 @@ class ByBlocks:
     assembled a chunk of kept ky rows at a time inside the round trip (its
     ``start`` and ``finish``); only those rows of the tendency are written, the
     others zeroed (once only for :attr:`owned_output`, an array nothing else
-    writes, unless :attr:`rezero_gaps`). Otherwise the whole-array frame and
-    advection before and after the round trip.
+    writes, unless :attr:`rezero_gaps`). Otherwise (the NumPy definitions,
+    which work on whole arrays) the frame and the advection are whole-array
+    steps before and after the round trip, whose chunks are copied from and
+    back into the spectral arrays.
     """
 
     blocks = True
@@ -157,10 +161,22 @@ class ByBlocks:
         physics.to_cartesian(y, *P[:3], P[3] if self.inputs > 3 else None)
         if clock:
             clock.lap("frame to Cartesian")
-        self.trip(inputs, P, physics.products)
+        self.trip(inputs, P, physics.products, self._rows_back, self._rows_out)
         physics.assemble_advection(P, out)
         if clock:
             clock.lap("advection assembly")
+
+    def _rows_out(self, chunks, lo, hi) -> None:
+        """``start`` with whole-array inputs: their rows ``lo:hi``."""
+        nkz = self.fft.grid.nz_kept
+        for chunk, spec in zip(chunks, self.spectral):
+            np.copyto(chunk, spec[:, lo:hi, :nkz])
+
+    def _rows_back(self, chunks, lo, hi) -> None:
+        """``finish`` for the whole-array advection: rows ``lo:hi`` of the transforms."""
+        nkz = self.fft.grid.nz_kept
+        for chunk, spec in zip(chunks, self.spectral):
+            np.copyto(spec[:, lo:hi, :nkz], chunk)
 
     def _velocity_rows(self, chunks, lo, hi) -> None:
         self.physics.to_cartesian_rows(self._y, chunks, lo, hi)

@@ -51,10 +51,6 @@ class RoundTripPlan:
     z_inverse: pyfftw.FFTW
     z_forward: pyfftw.FFTW
     y_forward: pyfftw.FFTW
-    #: x-FFTs over each run of kept ky (kept kz only), in place
-    x_inverse: list
-    x_forward: list
-    band_runs: list
     #: kept ky over the whole y axis, and the gap between them
     y_runs: list
     y_gaps: list
@@ -66,14 +62,6 @@ class RoundTripPlan:
     #: x-planes per field and turn of the chunk copies
     chunk_planes: int
     nz_kept: int
-
-    def x_inverse_in_place(self, spec, clock) -> None:
-        nkz = self.nz_kept
-        for (a, b), plan in zip(self.band_runs, self.x_inverse):
-            plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
-            plan.execute()
-            if clock:  # work in 1-D x-FFTs
-                clock.count("x inverse", (b - a) * nkz)
 
 
 def make_plan(fft, count: int, flags, threads) -> RoundTripPlan:
@@ -92,16 +80,6 @@ def make_plan(fft, count: int, flags, threads) -> RoundTripPlan:
     # that is not a multiple of the SIMD alignment
     aligned = (nb * ny * nzc * 16) % pyfftw.simd_alignment == 0
     bflags = flags if aligned else flags + ("FFTW_UNALIGNED",)
-    # the x-transforms over the kept (ky, kz) columns only, in place. With
-    # shared rows the round trip copies into and out of the shared columns:
-    # faster than FFTs straight between them, as the first read of the shared
-    # columns after the blocks is slow (docs/performance.md)
-    spectral = fft.spectral
-    x_inverse, x_forward = (
-        [pyfftw.FFTW(spectral[:, a:b, :nkz], spectral[:, a:b, :nkz], axes=(0,),
-                     direction=direction, flags=flags, threads=threads)
-         for a, b in fft.band_runs]
-        for direction in ("FFTW_BACKWARD", "FFTW_FORWARD"))
     c = g.cutoff[1]
     per_row = count * g.shape[0] * nkz * 16
     most = max(1, CHUNK_BYTES // per_row)
@@ -131,7 +109,6 @@ def make_plan(fft, count: int, flags, threads) -> RoundTripPlan:
                               flags=flags, threads=threads),
         y_forward=pyfftw.FFTW(cb[:, :, :nkz], cb[:, :, :nkz], axes=(1,),
                               direction="FFTW_FORWARD", flags=flags, threads=threads),
-        x_inverse=x_inverse, x_forward=x_forward, band_runs=fft.band_runs,
         y_runs=[(0, c + 1), (ny - c, ny)], y_gaps=[(c + 1, ny - c)],
         chunks=chunks, chunk_buffers=chunk_buffers, chunk_plans=chunk_plans,
         chunk_plans_inverse=chunk_plans_inverse,
@@ -153,7 +130,7 @@ class RoundTrip:
         self.fft = fft
         self.plan = make_plan(fft, count, fft.flags, fft.threads)
 
-    def __call__(self, inputs, outputs, pointwise=None, finish=None, start=None) -> None:
+    def __call__(self, inputs, outputs, pointwise, finish, start) -> None:
         """Inverse transforms, a pointwise pass on the grid, band-pruned forward transforms.
 
         The ``m`` arrays of ``inputs`` (spectral, destroyed; zero outside the
@@ -167,21 +144,19 @@ class RoundTrip:
         ones, but the physical fields never exist as full arrays. An output
         may be one of the inputs.
 
-        With ``start``, the inputs are made the same way, a chunk of kept ky rows
-        at a time: ``start(chunks, lo, hi)`` fills the ``m`` buffers of shape
-        ``(nx, hi - lo, nz_kept)`` with the inputs' modes of local ky rows
-        ``lo:hi`` (zero at the dropped kx), which are x-transformed in cache and
-        copied on; ``inputs`` then only serve as work arrays (on one rank, and
-        with ``Alltoall`` transposes, their rows outside the kept ky must still
-        be zero: the block loop reads them there).
-
-        With ``finish``, the forward results never go to ``outputs`` (which then
-        only serve as work arrays and hold nothing useful afterwards): the
-        x-FFTs run a few kept ky rows at a time, each chunk's rows of all ``k``
-        fields copied together into small buffers that stay in cache, and
-        ``finish(chunks, lo, hi)`` gets the ``k`` transformed buffers of shape
-        ``(nx, hi - lo, nz_kept)`` for the local ky rows ``lo:hi`` (only kept
-        rows; kx all, correct inside the 2/3-rule band).
+        The inputs are made, and the outputs handed on, a chunk of kept ky rows
+        at a time while it is in cache. ``start(chunks, lo, hi)`` fills the ``m``
+        buffers of shape ``(nx, hi - lo, nz_kept)`` with the inputs' modes of
+        local ky rows ``lo:hi`` (zero at the dropped kx), which are
+        x-transformed in cache and copied on; ``inputs`` then only serve as work
+        arrays (on one rank, and with ``Alltoall`` transposes, their rows
+        outside the kept ky must still be zero: the block loop reads them
+        there). The forward results never go to ``outputs`` (which serve as
+        work arrays and hold nothing useful afterwards): the x-FFTs run a chunk
+        of rows at a time and ``finish(chunks, lo, hi)`` gets the ``k``
+        transformed buffers of shape ``(nx, hi - lo, nz_kept)`` for the local
+        ky rows ``lo:hi`` (only kept rows; kx all, correct inside the 2/3-rule
+        band).
 
         With shared-memory transposes the ranks claim blocks from a node
         counter instead of each taking its own x-planes, so ``pointwise`` may
@@ -196,20 +171,14 @@ class RoundTrip:
         fft.count_forward += k
         fft.count_forward_band += k
         clock = fft.clock
-        if start is not None:
-            self._start_by_chunks(inputs, start)
-            rows_in, rows_out = transpose.after_start(inputs, outputs, plan)
-        else:
-            rows_in, rows_out = transpose.x_inverse(inputs, outputs, plan, clock)
+        self._start_by_chunks(inputs, start)
+        rows_in, rows_out = transpose.after_start(inputs, outputs, plan)
         if clock:
             clock.lap("wait" if transpose.kind == "shared" else "x inverse")
         rows_in, rows_out, starts = transpose.block_starts(plan, rows_in, rows_out)
         self._blocks(rows_in, rows_out, starts, pointwise, clock)
         sources = transpose.to_columns(outputs, plan, clock)
-        if finish is not None:
-            self._finish_by_chunks(sources, finish)
-        else:
-            self._x_forward(sources, outputs)
+        self._finish_by_chunks(sources, finish)
         transpose.end_trip(clock)
 
     def _blocks(self, rows_in, rows_out, starts, pointwise, clock) -> None:
@@ -231,10 +200,9 @@ class RoundTrip:
             if clock:  # work in x-planes
                 clock.lap("yz inverse")
                 clock.count("yz inverse", done)
-            if pointwise is not None:
-                pointwise(blocks)
-                if clock:
-                    clock.lap("products")
+            pointwise(blocks)
+            if clock:
+                clock.lap("products")
             done = 0
             for block, spec in zip(blocks, rows_out):
                 zf.update_arrays(block, cb)
@@ -274,23 +242,6 @@ class RoundTrip:
         for i0 in range(0, targets[0].shape[0] if targets else 0, step):
             for target, source in zip(targets, sources):
                 np.copyto(target[i0:i0 + step], source[i0:i0 + step])
-
-    def _x_forward(self, sources, outputs) -> None:
-        """The x-FFTs into ``outputs`` (from shared columns: a copy, then in place)."""
-        plan, clock = self.plan, self.fft.clock
-        nkz = plan.nz_kept
-        for source, spec in zip(sources, outputs):
-            if source is not spec:
-                for a, b in plan.band_runs:
-                    np.copyto(spec[:, a:b, :nkz], source[:, a:b, :nkz])
-        for spec in outputs:
-            for (a, b), x_plan in zip(plan.band_runs, plan.x_forward):
-                x_plan.update_arrays(spec[:, a:b, :nkz], spec[:, a:b, :nkz])
-                x_plan.execute()
-                if clock:
-                    clock.count("x forward", (b - a) * nkz)
-        if clock:
-            clock.lap("x forward")
 
     def _finish_by_chunks(self, sources, finish) -> None:
         """The x-FFTs a chunk of kept ky rows at a time, handed to ``finish``."""

@@ -75,13 +75,6 @@ class SingleRank(_Transpose):
         # the block loop reads the inputs' own rows: one array to plan with
         return [self.fft.spectral]
 
-    def x_inverse(self, inputs, outputs, plan, clock):
-        """x first, in place: the (y, z) transforms of each block then read the
-        inputs' own rows, and the outputs' rows take the forward results."""
-        for spec in inputs:
-            plan.x_inverse_in_place(spec, clock)
-        return inputs, outputs
-
     def after_start(self, inputs, outputs, plan):
         return inputs, outputs
 
@@ -195,20 +188,6 @@ class SharedMemory(_Slabs):
         if clock:
             clock.lap("wait")
 
-    def x_inverse(self, inputs, outputs, plan, clock):
-        """In place, then a copy into the shared columns (faster than an FFT
-        straight into them: see :class:`shearmix.solver.compute.roundtrip.RoundTrip`)."""
-        self.settle(plan, clock)
-        nkz = self.fft.grid.nz_kept
-        for spec, cols in zip(inputs, self.trip_cols):
-            plan.x_inverse_in_place(spec, clock)
-            for a, b in self.fft.band_runs:
-                np.copyto(cols[:, a:b, :nkz], spec[:, a:b, :nkz])
-        if clock:
-            clock.lap("x inverse")
-        self.comm.barrier()
-        return plan.rows[:len(inputs)], plan.rows[:len(outputs)]
-
     def start_targets(self, inputs, plan):
         self.settle(plan, self.fft.clock)
         return self.trip_cols[:len(inputs)]
@@ -293,12 +272,6 @@ class Alltoall(_Slabs):
         g = self.fft.grid
         return [pyfftw.empty_aligned((g.nx_local, g.shape[1], g.nzc), dtype=np.complex128)
                 for _ in range(count)]
-
-    def x_inverse(self, inputs, outputs, plan, clock):
-        for spec, mid in zip(inputs, plan.rows):
-            plan.x_inverse_in_place(spec, clock)
-            self._exchange.to_x_slabs(spec, mid)
-        return plan.rows[:len(inputs)], plan.rows[:len(outputs)]
 
     def after_start(self, inputs, outputs, plan):
         for spec, mid in zip(inputs, plan.rows):
