@@ -21,12 +21,13 @@ from typing import Any, Callable
 
 import yaml
 
+from shearmix.solver.compute.options import (DEFAULT_WISDOM, FFTW_EFFORTS, KERNEL_BACKENDS,
+                                             PRODUCT_PASSES, TRANSPOSES)
 from shearmix.solver.grid import dealias_cutoff
 
 MODELS = ("boussinesq", "lowpe")
 INITIAL_KINDS = ("laminar_noise", "laminar", "rest", "mode", "file", "eigenmode")
 MODE_COMPONENTS = ("vortical", "poloidal", "T")
-FFTW_EFFORTS = ("estimate", "measure", "patient")
 #: forcing conventions by name; the older spellings are still read
 AMPLITUDE_NAMES = {"laminar": "laminar", "unit": "unit",
                    "unit-laminar": "laminar", "unit-forcing": "unit"}
@@ -142,8 +143,17 @@ SCHEMA: dict[str, Key] = {
                            "else the node's cores over its ranks)", lower=1),
     "compute.fftw_effort": Key("choice", "measure", "FFTW planning effort",
                                choices=FFTW_EFFORTS),
-    "compute.wisdom": Key("str", "~/.cache/shearmix/fftw-wisdom",
+    "compute.wisdom": Key("str", DEFAULT_WISDOM,
                           "FFTW wisdom cache file ('' disables it)"),
+    "compute.product_pass": Key("choice", "auto", "how the advection's products are made: "
+                                "blocks of x-planes, whole arrays, or auto (blocks when the "
+                                "fields overflow the cache)", choices=PRODUCT_PASSES),
+    "compute.transpose": Key("choice", "auto", "the slab transpose: node shared memory, "
+                             "Alltoall messages, or auto (shared when all ranks share a node)",
+                             choices=TRANSPOSES),
+    "compute.kernels": Key("choice", "numba", "element-wise kernels: compiled (numba; numpy "
+                           "when Numba is missing) or their NumPy definitions",
+                           choices=KERNEL_BACKENDS),
 }
 
 SECTIONS = sorted({k.split(".")[0] for k in SCHEMA if "." in k})

@@ -5,7 +5,7 @@ import math
 import os
 
 from shearmix.solver.case import Case
-from shearmix.solver.compute.productpass import physical_pass, product_fields
+from shearmix.solver.compute.productpass import choose_product_pass, product_fields
 from shearmix.solver.grid import allowed_rank_counts, dealias_cutoff
 
 #: resident memory of Python and the libraries per rank (a 16^3 run, measured: ~250 MB)
@@ -19,24 +19,22 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float
     array 8, a real spectral array 4. Counted: the three stepper registers
     (solution, stage, tendency) of ``nfields`` spectral fields; the implicit
     coefficient arrays (2 for the low-Peclet model, 4 for the full one); the
-    transform's physical planning buffer. With whole arrays (``blocks``
-    False): the velocity (and temperature) physical arrays, a second product
-    array beside the planning buffer, five spectral product transforms and,
-    on several ranks, the two shared transpose arrays. Block-wise: one spectral array per product field (5,
-    or 8 with temperature) and, on several ranks, as many shared arrays.
-    Measured by ``scripts/bench`` at 128^3, net of the interpreter: whole
-    arrays 138 (lowpe) and 175 (boussinesq) bytes per point against 128 and
-    168 from this count; block-wise 115 and 168 against 104 and 160.
+    transform's physical planning buffer; one spectral array per product
+    field (5, or 8 with temperature). With whole arrays (``blocks`` False):
+    as many physical arrays (one of them the planning buffer) and, on several
+    ranks, the two shared transpose arrays. Block-wise: on several ranks, one
+    shared array per product field (docs/performance.md compares this count
+    with measured figures).
     """
     spectral, physical, real_spectral = 8.0, 8.0, 4.0
     full = nfields == 3
     total = 3 * nfields * spectral + (4 if full else 2) * real_spectral + physical
+    products = product_fields(full)
+    total += products * spectral
     if blocks:
-        products = product_fields(full)
-        total += products * spectral
         total += products * spectral if ranks > 1 else 0
     else:
-        total += (3 + (1 if full else 0) + 1) * physical + 5 * spectral
+        total += (products - 1) * physical
         total += 2 * spectral if ranks > 1 else 0
     return total
 
@@ -70,7 +68,8 @@ def derived(case: Case, ranks: int | None = None) -> dict:
     }
     # the product pass the run will choose, all ranks on one node
     full = nfields == 3
-    blocks = physical_pass(product_fields(full) * nx * ny * nz * 8) == "blocks"
+    blocks = choose_product_pass(case.get("compute.product_pass"),
+                                 product_fields(full) * nx * ny * nz * 8) == "blocks"
     per_point = bytes_per_point(nfields, ranks or 1, blocks)
     out["product pass"] = "block-wise" if blocks else "whole arrays"
     out["expected memory"] = per_point * nx * ny * nz + LIBRARY_BYTES * (ranks or 1)

@@ -36,11 +36,36 @@ def _shown(value) -> str:
     return "unset" if value is None else repr(value)
 
 
+#: environment variables read once, as defaults of ``--set`` for the engine's
+#: ``compute.*`` keys (``--set`` wins); SHEARMIX_PHYSICAL_PASS is the old name
+ENVIRONMENT_KEYS = (("SHEARMIX_PRODUCT_PASS", "compute.product_pass"),
+                    ("SHEARMIX_PHYSICAL_PASS", "compute.product_pass"),
+                    ("SHEARMIX_TRANSPOSE", "compute.transpose"),
+                    ("SHEARMIX_KERNELS", "compute.kernels"))
+
+
+def environment_settings(environ) -> list[str]:
+    """``key=value`` settings from the variables of :data:`ENVIRONMENT_KEYS` that are
+    set; a value the key does not allow raises ValueError naming the variable."""
+    from shearmix.solver.case import SCHEMA
+    settings = []
+    for var, key in ENVIRONMENT_KEYS:
+        value = environ.get(var, "")
+        if not value:
+            continue
+        allowed = SCHEMA[key].choices
+        if value not in allowed:
+            raise ValueError(f"{var}={value!r}: allowed are {', '.join(allowed)}")
+        settings.append(f"{key}={value}")
+    return settings
+
+
 def _load(args):
     from shearmix.solver.case import CaseError, load_case
     try:
-        return load_case(args.case, args.set or None), None
-    except CaseError as exc:
+        overrides = environment_settings(os.environ) + (args.set or [])
+        return load_case(args.case, overrides or None), None
+    except ValueError as exc:  # CaseError, or a bad environment setting
         return None, str(exc)
 
 
@@ -109,12 +134,8 @@ def _on_rank0(comm, work):
 
 def _memory_check(case, comm, allow: bool):
     """The refusal message when the run would not fit its nodes' memory (None if it fits)."""
-    from shearmix.solver.compute.productpass import PhysicalPassError
     from shearmix.solver.sizing import memory_shortfall
-    try:
-        mine = memory_shortfall(case, comm.size, comm.ranks_on_node())
-    except PhysicalPassError as exc:  # the same refusal the engine would give
-        return str(exc)
+    mine = memory_shortfall(case, comm.size, comm.ranks_on_node())
     messages = comm.gather(mine)
     message = comm.bcast(next((m for m in messages if m), None) if comm.rank == 0 else None)
     if message is None or allow:
@@ -209,13 +230,11 @@ def cmd_run(args) -> int:
     if rank0:
         for w in case.warnings:
             print(f"shearmix: warning: {w}", file=sys.stderr)
-    from shearmix.solver.compute.kernels import KernelBackendError
-    from shearmix.solver.compute.productpass import PhysicalPassError
+    from shearmix.solver.compute.options import ComputeOptionError
     from shearmix.solver.run.simulation import Simulation
     try:
         sim = Simulation(case, comm, initial=chosen is None)
-    except (InitialStateError, GridError, CaseError, PhysicalPassError,
-            KernelBackendError) as exc:
+    except (InitialStateError, GridError, CaseError, ComputeOptionError) as exc:
         return _fail(str(exc)) if rank0 else EXIT_BAD_INPUT
     if chosen is not None:
         chosen, warnings = _restore(sim, args.restart, case, out_dir, chosen, comm)

@@ -20,7 +20,6 @@ libraries).
 from __future__ import annotations
 
 import argparse
-import contextlib
 import json
 import os
 import resource
@@ -29,8 +28,10 @@ import subprocess
 import sys
 import time
 
+from shearmix.solver.compute.options import PRODUCT_PASSES
 
-def _case(model: str, n: int, steps: int, threads: int = 1):
+
+def _case(model: str, n: int, steps: int, threads: int = 1, product_pass: str = "auto"):
     from shearmix.solver.case import case_from_dict
     params = {"lowpe": {"Re": 400.0, "BPe": 1.0},
               "boussinesq": {"Re": 400.0, "B": 1.0, "Pr": 1.0}}[model]
@@ -40,11 +41,13 @@ def _case(model: str, n: int, steps: int, threads: int = 1):
         "box": {"Lx": "4*pi", "Ly": "2*pi", "Lz": "2*pi"},
         "time": {"max_steps": steps, "dt": 1e-3, "adaptive": False},
         "initial": {"kind": "laminar_noise", "amplitude": 0.1},
-        "compute": {"fftw_effort": "measure", "threads": threads},
+        "compute": {"fftw_effort": "measure", "threads": threads,
+                    "product_pass": product_pass},
     })
 
 
-def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0) -> dict | None:
+def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0,
+           product_pass: str = "auto") -> dict | None:
     """Measure inside one MPI job; returns the record on rank 0.
 
     ``diag_every > 0`` computes the diagnostics and appends them to a time-series
@@ -55,7 +58,7 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
     from shearmix.solver.run.simulation import Simulation
     comm = world()
     t0 = time.perf_counter()
-    sim = Simulation(_case(model, n, steps, threads), comm)
+    sim = Simulation(_case(model, n, steps, threads, product_pass), comm)
     series = None
     if diag_every:
         import tempfile
@@ -89,21 +92,25 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
 
         # as in the step: the x-FFTs by chunks of rows, made and handed on by
         # nothing here (the buffers hold the last chunks' modes: finite numbers)
-        pass_on = (lambda chunks, lo, hi: None) if nl.chunked else None
+        trip = nl.products_pass.trip
+
+        def pass_on(*chunks_and_rows):
+            pass
 
         def transforms_alone():
             for _ in range(n_trips):
-                fft.round_trip(nl.P[:m], nl.P[:k], None, pass_on, pass_on)
+                trip(nl.P[:m], nl.P[:k], pass_on, pass_on, pass_on)
     else:
-        # whole-array pass: inverse into the velocity (and T) work arrays,
-        # forward from the product buffer into the product transforms
-        targets = list(nl.velocity) + ([nl.temperature] if nl.temperature is not None else [])
+        # whole-array pass: inverse into its physical fields, forward from them
+        # into its spectral arrays
+        fields = nl.products_pass.fields
 
         def transforms_alone():
             for i in range(n_inv):
-                fft.inverse(nl.scratch, targets[i % len(targets)])
+                fft.inverse(nl.scratch, fields[i % len(fields)])
             for i in range(n_fwd):
-                (fft.forward_band if i < n_band else fft.forward)(nl.product, nl.P[i % len(nl.P)])
+                (fft.forward_band if i < n_band else fft.forward)(fields[i % len(fields)],
+                                                                  nl.P[i % len(nl.P)])
 
     # steps and floors alternate, so that a change in the machine's load during
     # the run weighs on both medians alike (the machine may be shared)
@@ -141,24 +148,9 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
             "floor_seconds": fl, "ratio": step / fl, "step_cpu_seconds": step_cpu,
             "floor_cpu_seconds": fl_cpu, "ratio_cpu": step_cpu / fl_cpu,
             "transforms_per_step": n_fwd + n_inv,
-            "physical_pass": "blocks" if n_trips else "whole",
+            "product_pass": "blocks" if n_trips else "whole",
             "first_step_seconds": first, "setup_seconds": setup,
             "peak_rss_bytes": rss, "bytes_per_point": rss / n ** 3}
-
-
-@contextlib.contextmanager
-def _physical_pass(kind: str):
-    """``SHEARMIX_PHYSICAL_PASS=kind`` while simulations are made; the caller's
-    setting afterwards."""
-    saved = os.environ.get("SHEARMIX_PHYSICAL_PASS")
-    os.environ["SHEARMIX_PHYSICAL_PASS"] = kind
-    try:
-        yield
-    finally:
-        if saved is None:
-            os.environ.pop("SHEARMIX_PHYSICAL_PASS", None)
-        else:
-            os.environ["SHEARMIX_PHYSICAL_PASS"] = saved
 
 
 def passes_worker(model: str, n: int, steps: int) -> dict | None:
@@ -169,33 +161,13 @@ def passes_worker(model: str, n: int, steps: int) -> dict | None:
     comm = world()
     sims = {}
     for kind in ("whole", "blocks"):
-        with _physical_pass(kind):
-            sims[kind] = Simulation(_case(model, n, steps), comm)
+        sims[kind] = Simulation(_case(model, n, steps, product_pass=kind), comm)
     times = _alternating_steps(sims, steps, comm)
     if comm.rank != 0:
         return None
     whole, blocks = times["whole"], times["blocks"]
     return {"model": model, "n": n, "ranks": comm.size, "whole_seconds": whole,
             "blocks_seconds": blocks, "blocks_vs_whole": blocks / whole}
-
-
-def schedule_worker(model: str, n: int, steps: int) -> dict | None:
-    """The round trip's blocks claimed from a node counter (dynamic) against each
-    rank on its own x-planes (static), steps alternating in one process."""
-    from shearmix.solver.compute.parallel import world
-    from shearmix.solver.run.simulation import Simulation
-    comm = world()
-    with _physical_pass("blocks"):   # the schedules are the round trip's
-        sims = {kind: Simulation(_case(model, n, steps), comm) for kind in ("static", "dynamic")}
-    sims["static"].fft.dynamic_blocks = False
-    times = _alternating_steps(sims, steps, comm)
-    if comm.rank != 0:
-        return None
-    return {"model": model, "n": n, "ranks": comm.size,
-            "physical_pass": "blocks" if sims["dynamic"].tendency.blocks else "whole",
-            "static_seconds": times["static"],
-            "dynamic_seconds": times["dynamic"],
-            "dynamic_vs_static": times["dynamic"] / times["static"]}
 
 
 def _alternating_steps(sims: dict, steps: int, comm) -> dict:
@@ -214,7 +186,7 @@ def _alternating_steps(sims: dict, steps: int, comm) -> dict:
     return {kind: statistics.median(t) for kind, t in times.items()}
 
 
-def phases_worker(model: str, n: int, steps: int) -> dict | None:
+def phases_worker(model: str, n: int, steps: int, product_pass: str = "auto") -> dict | None:
     """Where a step's time goes, rank by rank: a :class:`shearmix.solver.compute.phaseclock.PhaseClock`
     on the transform laps each phase; what is left of the step (stage updates,
     implicit solves, forcing) is "rest". Milliseconds per step, mean over ``steps``."""
@@ -222,7 +194,7 @@ def phases_worker(model: str, n: int, steps: int) -> dict | None:
     from shearmix.solver.compute.phaseclock import PhaseClock
     from shearmix.solver.run.simulation import Simulation
     comm = world()
-    sim = Simulation(_case(model, n, steps), comm)
+    sim = Simulation(_case(model, n, steps, product_pass=product_pass), comm)
     sim.advance()
     sim.advance()
     clock = sim.fft.clock = PhaseClock()
@@ -241,7 +213,7 @@ def phases_worker(model: str, n: int, steps: int) -> dict | None:
     if comm.rank != 0:
         return None
     return {"model": model, "n": n, "ranks": comm.size, "steps": steps,
-            "physical_pass": "blocks" if sim.tendency.blocks else "whole",
+            "product_pass": "blocks" if sim.tendency.blocks else "whole",
             "ms_per_step": per_rank, "work_per_step": work}
 
 
@@ -302,10 +274,10 @@ def _mpiexec() -> str:
 
 
 def launch(model: str, n: int, ranks: int, steps: int, threads: int = 1,
-           diag_every: int = 0, worker: str = "--worker") -> dict:
+           diag_every: int = 0, worker: str = "--worker", product_pass: str = "auto") -> dict:
     env = dict(os.environ, OMP_NUM_THREADS=str(threads))
     cmd = [_mpiexec(), "-n", str(ranks), sys.executable, os.path.abspath(__file__),
-           worker, model, str(n), str(steps), str(threads), str(diag_every)]
+           worker, model, str(n), str(steps), str(threads), str(diag_every), product_pass]
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if res.returncode != 0:
         raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks failed:\n"
@@ -349,7 +321,8 @@ def markdown(report: dict) -> str:
         lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | {r['step_seconds']:.4f} "
                      f"| {r['floor_seconds']:.4f} | {r['ratio']:.2f} | {r['ratio_cpu']:.2f} "
                      f"| {r['transforms_per_step']} | {r['first_step_seconds']:.2f} "
-                     f"| {r['bytes_per_point_net']:.0f} | {r.get('physical_pass', '')} |")
+                     f"| {r['bytes_per_point_net']:.0f} "
+                     f"| {r.get('product_pass', r.get('physical_pass', ''))} |")
     one = {(r["model"], r["n"]): r for r in report["records"] if r["ranks"] == 1}
     two = [r for r in report["records"] if r["ranks"] == 2 and (r["model"], r["n"]) in one]
     if two:
@@ -378,12 +351,6 @@ def markdown(report: dict) -> str:
         lines += ["", f"Where a step's time goes at {phases[0]['n']}^3, ms per step "
                   "(`--phases`; '#k' is rank k, '2/1' the slowest rank of 2 against 1 rank):",
                   "", "```", *phases_table(phases), "```"]
-    sched = [v for k, v in extras.items() if k.startswith("schedule_")]
-    if sched:
-        lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} ranks: blocks claimed "
-                         f"dynamically {v['dynamic_seconds']:.3f} s, each rank its own planes "
-                         f"{v['static_seconds']:.3f} s per step ({v['dynamic_vs_static']:.3f})"
-                         for v in sched]
     passes = [v for k, v in extras.items() if k.startswith("passes_")]
     if passes:
         lines += [""] + [f"- {v['model']} {v['n']}^3, {v['ranks']} rank(s): block-wise "
@@ -398,7 +365,7 @@ def _compare(args, extras: dict, kind: str, n: int, rank_counts, title: str, des
     print(f"\n{title} at {n}^3 (one process, steps alternating):")
     for model in args.models:
         for ranks in rank_counts:
-            r = launch(model, n, ranks, args.steps, worker=f"--{kind}-worker")
+            r = launch(model, n, ranks, args.steps, worker=f"--{kind}-worker")  # both passes
             extras[f"{kind}_{model}_{ranks}"] = r
             print(f"  {model:11s} {ranks} rank(s): {describe(r)}")
 
@@ -425,23 +392,20 @@ def main(argv=None) -> int:
     ap.add_argument("--phases", action="store_true",
                     help="also time each phase of the step, rank by rank, at the "
                          "largest size (where the time goes)")
-    ap.add_argument("--phases-worker", nargs=5, help=argparse.SUPPRESS)
-    ap.add_argument("--schedule", action="store_true",
-                    help="also compare the round trip's blocks claimed dynamically with "
-                         "each rank on its own planes (largest size and rank count)")
-    ap.add_argument("--schedule-worker", nargs=5, help=argparse.SUPPRESS)
-    ap.add_argument("--worker", nargs=5, help=argparse.SUPPRESS)
-    ap.add_argument("--passes-worker", nargs=5, help=argparse.SUPPRESS)
+    ap.add_argument("--product-pass", choices=PRODUCT_PASSES, default="auto",
+                    help="how the products are made in the timed runs (compute.product_pass)")
+    ap.add_argument("--phases-worker", nargs=6, help=argparse.SUPPRESS)
+    ap.add_argument("--worker", nargs=6, help=argparse.SUPPRESS)
+    ap.add_argument("--passes-worker", nargs=6, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.markdown:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
         return 0
     # inside an MPI job launched by launch(): one worker, its record on rank 0
-    jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4])),
+    jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]), w[5]),
             "passes_worker": lambda w: passes_worker(w[0], int(w[1]), int(w[2])),
-            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2])),
-            "schedule_worker": lambda w: schedule_worker(w[0], int(w[1]), int(w[2]))}
+            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2]), w[5])}
     for name, job in jobs.items():
         if getattr(args, name):
             rec = job(getattr(args, name))
@@ -455,14 +419,16 @@ def main(argv=None) -> int:
           f"{'ratio':>6s} {'cpu ratio':>9s} {'FFTs':>5s} {'1st step':>8s} {'B/pt raw':>9s} "
           f"{'B/pt net':>9s} products")
     for model in args.models:
-        base = {ranks: launch(model, 16, ranks, 3)["peak_rss_bytes"] for ranks in args.ranks}
+        base = {ranks: launch(model, 16, ranks, 3, product_pass=args.product_pass)
+                ["peak_rss_bytes"] for ranks in args.ranks}
         for n in args.sizes:
             # the rank counts take turns, repeat after repeat, so that a change of
             # the machine's load falls on all of them (the machine may be shared)
             runs = {ranks: [] for ranks in args.ranks}
             for _ in range(args.repeats):
                 for ranks in args.ranks:
-                    runs[ranks].append(launch(model, n, ranks, args.steps))
+                    runs[ranks].append(launch(model, n, ranks, args.steps,
+                                              product_pass=args.product_pass))
             for ranks in args.ranks:
                 r = combine(runs[ranks])
                 r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base[ranks]) / n ** 3
@@ -478,7 +444,7 @@ def main(argv=None) -> int:
                       f"{r['floor_seconds']:9.4f} {r['ratio']:6.2f} {r['ratio_cpu']:9.2f} "
                       f"{r['transforms_per_step']:5d} {r['first_step_seconds']:8.3f} "
                       f"{r['bytes_per_point']:9.0f} {r['bytes_per_point_net']:9.0f} "
-                      f"{r['physical_pass']}", flush=True)
+                      f"{r['product_pass']}", flush=True)
     extras = {}
     big = max(args.sizes)
     if args.diagnostics:
@@ -510,11 +476,6 @@ def main(argv=None) -> int:
                  "block-wise against whole-array products",
                  lambda r: f"whole {r['whole_seconds']:.4f} s, blocks {r['blocks_seconds']:.4f} s, "
                            f"ratio {r['blocks_vs_whole']:.3f}")
-    if args.schedule:
-        _compare(args, extras, "schedule", max(args.sizes), [max(args.ranks)],
-                 "blocks claimed from a node counter against each rank on its own planes",
-                 lambda r: f"static {r['static_seconds']:.4f} s, dynamic "
-                           f"{r['dynamic_seconds']:.4f} s, ratio {r['dynamic_vs_static']:.3f}")
     if args.phases:
         n = max(args.sizes)
         print(f"\nwhere a step's time goes at {n}^3 (ms per step, mean of {args.steps} steps; "
@@ -522,7 +483,8 @@ def main(argv=None) -> int:
         recs = []
         for model in args.models:
             for ranks in args.ranks:
-                r = launch(model, n, ranks, args.steps, worker="--phases-worker")
+                r = launch(model, n, ranks, args.steps, worker="--phases-worker",
+                           product_pass=args.product_pass)
                 extras[f"phases_{model}_{ranks}"] = r
                 recs.append(r)
         print("\n".join(phases_table(recs)))

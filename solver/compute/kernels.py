@@ -6,13 +6,12 @@ job is one compiled loop over the spectral (or physical) slab that reads and
 writes each element once. The NumPy versions define the arithmetic; the
 Numba versions must agree with them to round-off (tests/solver/test_kernels.py).
 
-Set ``SHEARMIX_KERNELS=numpy`` to use the NumPy versions (and when Numba is
-not installed). Compiled kernels are cached on disk (``cache=True``) so later
-runs start in well under a second.
+The backend is the case's ``compute.kernels``
+(:class:`shearmix.solver.compute.options.ComputeOptions`), set by the simulation with :func:`set_backend`; the NumPy versions run when
+Numba is not installed. Compiled kernels are cached on disk (``cache=True``) so
+later runs start in well under a second.
 """
 from __future__ import annotations
-
-import os
 
 import numpy as np
 
@@ -24,38 +23,22 @@ except ImportError:  # pragma: no cover
     HAVE_NUMBA = False
 
 
-BACKENDS = ("numba", "numpy")
+from shearmix.solver.compute.options import KERNEL_BACKENDS as BACKENDS  # noqa: E402
 
-#: the backend set in code, and ``SHEARMIX_KERNELS`` as read (None: not read yet)
-_BACKEND = {"name": None, "env": None}
-
-
-class KernelBackendError(ValueError):
-    """An unknown ``SHEARMIX_KERNELS``; the message is one line."""
+#: whether the compiled kernels run (a module flag: the kernels ask per block)
+_COMPILED = [HAVE_NUMBA]
 
 
-def set_backend(name: str | None) -> None:
-    """'numba', 'numpy', or None to follow ``SHEARMIX_KERNELS`` again (read anew)."""
-    if name not in (None,) + BACKENDS:
-        raise ValueError(f"kernel backend must be numba or numpy, got {name!r}")
-    _BACKEND["name"] = name
-    _BACKEND["env"] = None
+def set_backend(name: str) -> None:
+    """Run the ``'numba'`` (if installed) or the ``'numpy'`` kernels from now on."""
+    if name not in BACKENDS:
+        raise ValueError(f"compute.kernels: must be one of {', '.join(BACKENDS)}, got {name!r}")
+    _COMPILED[0] = HAVE_NUMBA and name == "numba"
 
 
 def use_numba() -> bool:
-    """Whether the compiled kernels run. ``SHEARMIX_KERNELS`` is read once (the
-    kernels ask per block, ~400 times a step at 128^3); a value other than
-    those of :data:`BACKENDS` raises :class:`KernelBackendError`."""
-    name = _BACKEND["name"]
-    if name is None:
-        name = _BACKEND["env"]
-        if name is None:
-            name = os.environ.get("SHEARMIX_KERNELS", "") or "numba"
-            if name not in BACKENDS:
-                raise KernelBackendError(f"SHEARMIX_KERNELS={name!r}: allowed are "
-                                         f"{', '.join(BACKENDS)}")
-            _BACKEND["env"] = name
-    return HAVE_NUMBA and name != "numpy"
+    """Whether the compiled kernels run."""
+    return _COMPILED[0]
 
 
 def _jit(fn):
@@ -233,7 +216,7 @@ def scalar_advection(P, mask, scale, band, kvec, out):
 def velocity_rows(a, p, basis, band, u, v, w, lo, hi) -> None:
     """:func:`velocity` for the local ky rows ``lo:hi`` only, compiled only: ``u, v,
     w`` are ``(nx, hi - lo, nz_kept)`` arrays (what
-    :meth:`shearmix.solver.compute.transforms.SlabTransform.round_trip` hands its ``start``),
+    :class:`shearmix.solver.compute.roundtrip.RoundTrip` hands its ``start``),
     zero at the dropped kx."""
     keepx, keepy, nkz = band
     _velocity_nb(a[:, lo:hi], p[:, lo:hi], basis.s[:, lo:hi], basis.c[:, lo:hi],
@@ -245,7 +228,7 @@ def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> N
     ``out[2]`` unless None) for the local ky rows ``lo:hi`` only, compiled only.
 
     The transforms are ``(nx, hi - lo, nz_kept)`` arrays of those rows (what
-    :meth:`shearmix.solver.compute.transforms.SlabTransform.round_trip` hands its ``finish``);
+    :class:`shearmix.solver.compute.roundtrip.RoundTrip` hands its ``finish``);
     ``out`` is the whole tendency, of which rows ``lo:hi`` are written (zero
     past the kz cutoff and at the dropped kx), the rest left alone.
     """
@@ -260,57 +243,6 @@ def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> N
 
 
 # ---------------------------------------------------------------- physical products
-def _product_loop(f, g, out):
-    n = out.size
-    fo = f.reshape(n)
-    go = g.reshape(n)
-    oo = out.reshape(n)
-    for i in range(n):
-        oo[i] = fo[i] * go[i]
-
-
-_product_nb = _jit(_product_loop)
-
-
-def product(f, g, out):
-    """``out = f g``."""
-    if use_numba():
-        _product_nb(f, g, out)
-        return out
-    return np.multiply(f, g, out=out)
-
-
-def _stress_pair_loop(f, g, first, second):
-    n = f.size
-    fo = f.reshape(n)
-    go = g.reshape(n)
-    a1 = first.reshape(n)
-    a2 = second.reshape(n)
-    for i in range(n):
-        x = fo[i]
-        y = go[i]
-        a1[i] = x * x - y * y
-        a2[i] = x * y
-
-
-_stress_pair_nb = _jit(_stress_pair_loop)
-
-
-def stress_pair(f, g, first, second):
-    """``first = f^2 - g^2`` and ``second = f g`` in one pass; outputs may be ``f`` or ``g``.
-
-    Two stresses from one read of their factors: writing them over the
-    velocity components that are no longer needed saves memory passes and
-    needs no extra array.
-    """
-    if use_numba():
-        _stress_pair_nb(f, g, first, second)
-        return
-    fg = f * g
-    np.subtract(f * f, g * g, out=first)
-    np.copyto(second, fg)
-
-
 def _stresses_loop(u, v, w, uv, uu_ww):
     n = u.size
     uf = u.reshape(n)
@@ -338,9 +270,14 @@ def stresses(u, v, w, uv, uu_ww):
     if use_numba():
         _stresses_nb(u, v, w, uv, uu_ww)
         return
-    product(u, v, uv)
-    stress_pair(u, w, uu_ww, u)
-    stress_pair(v, w, v, w)
+    # each written over a factor only once both its products are made
+    np.multiply(u, v, out=uv)
+    uw = u * w
+    np.subtract(u * u, w * w, out=uu_ww)
+    np.copyto(u, uw)
+    vw = v * w
+    np.subtract(v * v, w * w, out=v)
+    np.copyto(w, vw)
 
 
 def _scalar_fluxes_loop(u, v, w, T, uT, vT):
@@ -641,25 +578,58 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
                            *band, hb, hex_, him, haii, last)
 
 
+class _TinyFrame:
+    """Frame arrays shaped as :class:`shearmix.solver.physics.basis.CrayaHerring` holds
+    them (``s, c, kh``: ``(nx, ny, 1)``; ``kz``: 1-D), for :func:`warm_up`."""
+
+    def __init__(self, n: int):
+        self.s = self.c = self.kh = np.ones((n, n, 1))
+        self.kz = np.ones(n)
+
+
 def warm_up() -> None:
-    """Load (or compile) every kernel on tiny arrays, so the first step costs a normal step."""
+    """Load (or compile) the kernels a run calls, for the argument layouts it passes,
+    so that the first step costs a normal step (tests/solver/test_warmup.py).
+
+    Through the same wrappers as the run: whole arrays (the whole-array pass), and
+    chunks of ky rows (the block-wise pass) both as a narrower chunk sliced from
+    its buffers and as the widest chunk, the whole buffer.
+    """
     if not use_numba():
         return
-    z = np.zeros((2, 2, 2), dtype=np.complex128)
+    n = 4
+    frame, keep, kv = _TinyFrame(n), np.ones(n, dtype=np.bool_), np.ones(n)
+    band, kvec = (keep, keep, n), (kv, kv, kv)
+
+    def spectral(*lead):
+        return np.zeros(lead + (n, n, n), dtype=np.complex128)
+
+    # whole-array pass: frame to Cartesian, products, advection
+    velocity(spectral(), spectral(), frame, band, spectral(), spectral(), spectral())
+    r = [np.ones((n, n, n)) for _ in range(6)]
+    stresses(*r[:5])
+    scalar_fluxes(*r)
+    speed_limits(r[0], r[1], r[2], (1.0, 1.0, 1.0), None)
+    out = spectral(3)
+    momentum_advection([spectral() for _ in range(5)], None, 1.0, band, kvec, frame, out)
+    scalar_advection([spectral() for _ in range(3)], None, 1.0, band, kvec, out[2])
+    # block-wise pass: rows lo:hi of the state and of the tendency, chunk buffers
+    buffers = [np.zeros((n, 2, n), dtype=np.complex128) for _ in range(8)]
+    y = spectral(3)
+    for width in (1, 2):
+        chunks = [b[:, :width] for b in buffers]
+        velocity_rows(y[0], y[1], frame, band, *chunks[:3], 0, width)
+        advection_rows(chunks[:5], chunks[5:], 1.0, band, kvec, frame, out, 0, width)
+    # diagnostics and the stage update
+    z = spectral()
+    small = np.zeros((2, 2, 2), dtype=np.complex128)
     r = np.ones((2, 2, 2))
-    one = np.ones((2, 2, 1))
     keep = np.ones(2, dtype=np.bool_)
-    kv = np.ones(2)
-    stack2 = np.zeros((2, 2, 2, 2), dtype=np.complex128)
-    _velocity_nb(z, z, one, one, one, kv, keep, keep, 2, z.copy(), z.copy(), z.copy())
-    _momentum_nb(z, z, z, z, z, 1.0, keep, keep, 2, kv, kv, kv, one, one, one, stack2)
-    _scalar_flux_nb(z, z, z, 1.0, keep, keep, 2, kv, kv, kv, z.copy())
-    _product_nb(r, r, r.copy())
-    _stress_pair_nb(r, r.copy(), r.copy(), r.copy())
-    _speed_nb(r, r, r, 1.0, 1.0, 1.0)
     for has_T in (False, True):
-        _sums_nb(z, z, z, has_T, one, one, one, kv, np.zeros(len(SUM_NAMES)), np.zeros(2))
+        _sums_nb(z, z, z, has_T, frame.s, frame.c, frame.kh, frame.kz,
+                 np.zeros(len(SUM_NAMES)), np.zeros(n))
     for last in (False, True):
-        _stage_scalar_nb(z, z.copy(), z.copy(), r, keep, keep, 2, 0.1, 0.1, 0.1, 0.1, last)
-        _stage_pair_nb(z, z.copy(), z.copy(), z.copy(), z.copy(), z.copy(), r, r, r, r,
-                       keep, keep, 2, 0.1, 0.1, 0.1, 0.1, last)
+        _stage_scalar_nb(small, small.copy(), small.copy(), r, keep, keep, 2, 0.1, 0.1, 0.1,
+                         0.1, last)
+        _stage_pair_nb(small, small.copy(), small.copy(), small.copy(), small.copy(),
+                       small.copy(), r, r, r, r, keep, keep, 2, 0.1, 0.1, 0.1, 0.1, last)

@@ -92,11 +92,8 @@ class MPIComm:
     def node_shared_array(self, shape, dtype, align: int = 64) -> np.ndarray | None:
         """An array in memory shared by all ranks (one MPI-3 shared window), or None.
 
-        None when the ranks do not all share one node, or when
-        ``SHEARMIX_TRANSPOSE=alltoall`` asks for message passing.
+        None when the ranks do not all share one node.
         """
-        if os.environ.get("SHEARMIX_TRANSPOSE", "") == "alltoall":
-            return None
         if self.ranks_on_node() != self.size:
             return None
         MPI = self._MPI
@@ -119,8 +116,6 @@ class MPIComm:
     def node_counter(self, slots: int) -> "SharedCounter | None":
         """Integer counters all ranks of the node update atomically (collective), or
         None where :meth:`node_shared_array` would give None."""
-        if os.environ.get("SHEARMIX_TRANSPOSE", "") == "alltoall":
-            return None
         if self.ranks_on_node() != self.size:
             return None
         MPI = self._MPI

@@ -7,20 +7,23 @@ removes (a standard saving, e.g. Canuto et al. 2007, Spectral Methods:
 Evolution to Complex Geometries, section 3.3). Temperature advection is
 ``-div(u T)``. Per evaluation: 3 (+1) inverse and 5 (+3) forward transforms.
 
-Two ways to make the products, with the same transforms and results equal to
-round-off (:mod:`shearmix.solver.compute.productpass` chooses): on grids whose fields overflow
-the cache, one :meth:`SlabTransform.round_trip` makes them block by block of
-x-planes, so the velocity never exists as full arrays ("blocks"); on small
-grids, full velocity arrays and one 3D transform each ("whole").
+The steps, in order: frame to Cartesian (:meth:`PseudoSpectralTendency.to_cartesian`),
+the products on the grid (:meth:`~PseudoSpectralTendency.products`), the
+advection from their transforms (:meth:`~PseudoSpectralTendency.assemble_advection`),
+the forcing. The product pass (:mod:`shearmix.solver.compute.productpass`,
+``compute.product_pass``) applies the first three with whole arrays or block
+by block through the transforms; the equations are docs/equations.md.
 """
 from __future__ import annotations
 
 import numpy as np
 
 from shearmix.solver.compute import kernels
-from shearmix.solver.compute.productpass import PASS_CHOICES, physical_pass, product_fields
+from shearmix.solver.compute.options import PRODUCT_PASSES
+from shearmix.solver.compute.productpass import (ByBlocks, WholeArrays, choose_product_pass,
+                                                 product_fields)
 from shearmix.solver.compute.transforms import SlabTransform
-from shearmix.solver.grid import Grid, true_runs
+from shearmix.solver.grid import Grid
 from shearmix.solver.physics.basis import CrayaHerring
 from shearmix.solver.physics.forcing import ForcingModes
 from shearmix.solver.physics.terms import Advection, ShearForcing
@@ -29,50 +32,44 @@ from shearmix.solver.physics.terms import Advection, ShearForcing
 class PseudoSpectralTendency:
     """``N(y)`` for a stacked state ``y = [a, p(, T)]``; callable as ``(y, t, out)``.
 
-    ``physical_pass_kind``: ``'blocks'``, ``'whole'`` or None (choose by
-    :func:`shearmix.solver.compute.productpass.physical_pass`).
+    ``product_pass``: ``'blocks'``, ``'whole'`` or ``'auto'`` (choose by
+    :func:`shearmix.solver.compute.productpass.choose_product_pass`). Without
+    advection there are no products: the velocity is made with whole arrays
+    (for the speed limits) whatever the pass.
     """
 
     def __init__(self, grid: Grid, basis: CrayaHerring, transform: SlabTransform,
                  fields, advection: Advection | None, forcing: ShearForcing | None,
-                 physical_pass_kind: str | None = None):
+                 product_pass: str = "auto"):
+        if product_pass not in PRODUCT_PASSES:
+            raise ValueError(f"compute.product_pass: must be one of "
+                             f"{', '.join(PRODUCT_PASSES)}, got {product_pass!r}")
         self.grid, self.basis, self.fft = grid, basis, transform
         self.fields = tuple(fields)
         self.advection = advection
         self.has_T = "T" in self.fields
         self.with_T = self.has_T and advection is not None and advection.with_temperature
         n_products = product_fields(self.with_T)
-        if physical_pass_kind is None:
-            nx, ny, nz = grid.physical_shape
-            physical_pass_kind = physical_pass(
-                n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node())
-        if physical_pass_kind not in PASS_CHOICES:
-            raise ValueError(f"physical pass {physical_pass_kind!r}: allowed are "
-                             f"{', '.join(PASS_CHOICES)}")
-        self.blocks = physical_pass_kind == "blocks"
-        # the transform's own planning buffers serve as work arrays
-        self.product = transform.physical
-        # transforms of the products; P[0] doubles as the inverse transforms' input
-        n_spectral = n_products if self.blocks else 5
-        self.P = [transform.spectral] + [transform.empty_spectral()
-                                         for _ in range(n_spectral - 1)]
+        nx, ny, nz = grid.physical_shape
+        self.blocks = advection is not None and choose_product_pass(
+            product_pass, n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node()) \
+            == "blocks"
+        inputs = 4 if self.with_T else 3
+        outputs = n_products if advection is not None else 0
         if self.blocks:
-            transform.prepare_round_trip(n_products)
-            self.velocity = self.temperature = None
-            self._speed_work = None
+            # the velocity made and the advection assembled by chunks of rows:
+            # compiled kernels only (the NumPy definitions work on whole arrays)
+            self.products_pass = ByBlocks(transform, self, inputs, outputs,
+                                          chunked=kernels.use_numba())
         else:
-            self.velocity = [transform.empty_physical() for _ in range(3)]
-            self.temperature = transform.empty_physical() if self.has_T else None
-            # uu - ww beside the product buffer (uv): all five stresses in one pass
-            self._uu_ww = transform.empty_physical() if advection is not None else None
-        #: the advection is made in the round trip, a few ky rows at a time
-        #: (compiled kernels; the NumPy path keeps the whole-array assembly)
-        self.chunked = self.blocks and advection is not None and kernels.use_numba()
-        #: local ky rows outside the 2/3-rule band, as (start, stop) runs
-        self._gaps = true_runs(~grid.keep_y)
+            self.products_pass = WholeArrays(transform, self, inputs, outputs)
+        #: spectral work arrays (at least three); P[0] doubles as the inverse transforms' input
+        self.P = self.products_pass.spectral
         for buf in self.P:  # band-pruned transforms leave the rest as it was: finite
             buf[...] = 0
         self.scratch = self.P[0]
+        #: the transform's physical planning buffer, free between evaluations
+        self.product = transform.physical
         self._mask = None
         self.scale = 1.0 / float(grid.npoints)
         self.keep = (grid.keep_x, grid.keep_y,
@@ -81,18 +78,33 @@ class PseudoSpectralTendency:
         self.kvec = (np.ascontiguousarray(grid.kx.ravel()), np.ascontiguousarray(grid.ky.ravel()),
                      np.ascontiguousarray(grid.kz.ravel()))
         self.forcing = ForcingModes(forcing, grid, self.basis)
-        #: an output array that nothing but this tendency writes (the stepper's
-        #: tendency register, set by the simulation): the chunked pass zeroes its
-        #: rows outside the kept ky once instead of every evaluation
-        self.owned_output = None
-        self._owned_clean = False
         # forcing in a dropped row would pile up there if those rows were not rezeroed
         self._forcing_in_gaps = any(not grid.keep_y[idx[1]] for idx, _, _ in self.forcing)
+        if self.blocks:
+            self.products_pass.rezero_gaps = self._forcing_in_gaps
         self.want_speed = False
+        self._rate = self._speed2 = 0.0
         #: max over the domain of |u|/dx + |v|/dy + |w|/dz from the last evaluation
         self.cfl_rate = 0.0
         #: max velocity magnitude from the last evaluation that asked for it
         self.max_speed = 0.0
+
+    @property
+    def chunked(self) -> bool:
+        """Whether the pass makes the velocity and the advection by chunks of rows."""
+        return self.products_pass.chunked
+
+    @property
+    def owned_output(self):
+        """An output array that nothing but this tendency writes (the stepper's
+        tendency register, set by the simulation): the chunked pass zeroes its
+        rows outside the kept ky once instead of every evaluation."""
+        return getattr(self.products_pass, "owned_output", None)
+
+    @owned_output.setter
+    def owned_output(self, array) -> None:
+        if self.blocks:
+            self.products_pass.owned_output = array
 
     @property
     def mask(self) -> np.ndarray:
@@ -121,179 +133,85 @@ class PseudoSpectralTendency:
             T = fft.inverse(P[0], fft.empty_physical())
         return (*fields, T)
 
-    def to_physical(self, y: np.ndarray) -> None:
-        """Velocity (and temperature) of state ``y`` on the grid, into the work arrays
-        (the whole-array pass)."""
-        # one pass makes all three spectral components; each inverse then consumes one
-        kernels.velocity(y[0], y[1], self.basis, self.band, self.P[0], self.P[1], self.P[2])
-        for comp in range(3):
-            self.fft.inverse(self.P[comp], self.velocity[comp])
-        if self.has_T:
-            np.copyto(self.scratch, y[2])
-            self.fft.inverse(self.scratch, self.temperature)
+    # ------------------------------------------------------------ the physics
+    def to_cartesian(self, y, u, v, w, T) -> None:
+        """Spectral ``u, v, w`` of the frame amplitudes of ``y`` (and ``T``, unless None)."""
+        kernels.velocity(y[0], y[1], self.basis, self.band, u, v, w)
+        if T is not None:
+            np.copyto(T, y[2])
 
-    def _speed_limits(self):
-        u, v, w = self.velocity
-        rate, speed2 = kernels.speed_limits(u, v, w, self.grid.dx, self.product)
-        comm = self.fft.comm
-        self.cfl_rate = float(comm.max(rate))
-        self.max_speed = float(np.sqrt(comm.max(speed2)))
+    def to_cartesian_rows(self, y, chunks, lo, hi) -> None:
+        """:meth:`to_cartesian` of the local ky rows ``lo:hi`` into ``chunks``
+        (``(nx, hi - lo, nz_kept)``; compiled kernels only)."""
+        kernels.velocity_rows(y[0], y[1], self.basis, self.band, *chunks[:3], lo, hi)
+        if self.with_T:
+            np.copyto(chunks[3], y[2][:, lo:hi, :self.grid.nz_kept])
 
-    # ------------------------------------------------------------ block-wise pass
-    def _block_speed(self, u, v, w) -> None:
-        if self._speed_work is None and not kernels.use_numba():
-            self._speed_work = np.empty_like(u)
-        rate, speed2 = kernels.speed_limits(u, v, w, self.grid.dx, self._speed_work)
-        # a NaN must survive the running maximum
-        if rate > self._rate or rate != rate:
-            self._rate = rate
-        if speed2 > self._speed2 or speed2 != speed2:
-            self._speed2 = speed2
-
-    def _block_products(self, blocks) -> None:
-        """In one block: ``blocks = [u, v, w(, T), ...]`` in, the products out in
-        the order of :meth:`_products_by_blocks`'s outputs."""
-        u, v, w = blocks[0], blocks[1], blocks[2]
+    def products(self, fields) -> None:
+        """On the grid, in place: ``fields = [u, v, w(, T), ...]`` in, the products out
+        in the order of :meth:`assemble_advection` (and the speed limits, if wanted)."""
+        u, v, w = fields[0], fields[1], fields[2]
         if self.want_speed:
-            self._block_speed(u, v, w)
+            # the field past the inputs is free until the products are made
+            rate, speed2 = kernels.speed_limits(u, v, w, self.grid.dx, fields[-1])
+            # a NaN must survive the running maximum
+            if rate > self._rate or rate != rate:
+                self._rate = rate
+            if speed2 > self._speed2 or speed2 != speed2:
+                self._speed2 = speed2
         if self.advection is None:
             return
         if self.with_T:
-            # uT, vT into blocks 4, 5; wT over T
-            kernels.scalar_fluxes(u, v, w, blocks[3], blocks[4], blocks[5])
-            uv, uu_ww = blocks[6], blocks[7]
+            # uT, vT into fields 4, 5; wT over T
+            kernels.scalar_fluxes(u, v, w, fields[3], fields[4], fields[5])
+            uv, uu_ww = fields[6], fields[7]
         else:
-            uv, uu_ww = blocks[3], blocks[4]
+            uv, uu_ww = fields[3], fields[4]
         # u <- uw, v <- vv - ww, w <- vw
         kernels.stresses(u, v, w, uv, uu_ww)
 
-    def _products_by_blocks(self, y: np.ndarray, out: np.ndarray) -> None:
-        P, clock = self.P, self.fft.clock
-        inputs = P[:4] if self.with_T else P[:3]
-        if not self.chunked:
-            kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
-            if self.with_T:
-                np.copyto(P[3], y[2])
-            if clock:
-                clock.lap("frame to Cartesian")
-        self._rate = self._speed2 = 0.0
-        if self.advection is None:
-            self.fft.round_trip(inputs, [], self._block_products)
-        elif self.chunked:
-            # the velocity made and the advection made from the products a few
-            # ky rows at a time, in cache (SlabTransform.round_trip's start and
-            # finish); the other rows of the tendency are zero
-            self._y, self._out = y, out
-            self.fft.round_trip(inputs, P, self._block_products, self._advection_rows,
-                                self._velocity_rows)
-            owned = out is self.owned_output and not self._forcing_in_gaps
-            if not (owned and self._owned_clean):
-                for a, b in self._gaps:
-                    out[:, :, a:b] = 0
-            self._owned_clean = owned
-            if clock:
-                clock.lap("advection assembly")
-        else:
-            self.fft.round_trip(inputs, P, self._block_products)
-        if self.want_speed:
-            comm = self.fft.comm
-            self.cfl_rate = float(comm.max(self._rate))
-            self.max_speed = float(np.sqrt(comm.max(self._speed2)))
-            if clock:
-                clock.lap("wait")
-        if self.advection is None:
-            return
-        if self.has_T and not self.with_T:
-            out[2] = 0
-        if self.chunked:
-            return
-        stresses, fluxes = self._products_in_order(P)
-        if fluxes is not None:
-            kernels.scalar_advection(fluxes, self.mask, self.scale, self.band, self.kvec,
-                                     out[2])
-        kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
-                                   self.basis, out)
-        if clock:
-            clock.lap("advection assembly")
-
-    def _products_in_order(self, P):
-        """``(stresses, fluxes)`` from the round trip's outputs in the order of
-        :meth:`_block_products`: ``uu-ww, vv-ww, uv, uw, vw`` and ``uT, vT, wT``
-        (None without temperature advection)."""
+    def _in_order(self, P):
+        """``(stresses, fluxes)`` from the transforms of :meth:`products`' outputs:
+        ``uu-ww, vv-ww, uv, uw, vw`` and ``uT, vT, wT`` (None without T advection)."""
         if self.with_T:
             # P = [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
             return (P[7], P[1], P[6], P[0], P[2]), (P[4], P[5], P[3])
         # P = [uw, vv-ww, vw, uv, uu-ww]
         return (P[4], P[1], P[3], P[0], P[2]), None
 
-    def _velocity_rows(self, chunks, lo, hi) -> None:
-        """``start`` of the round trip: u, v, w (and T) of ky rows ``lo:hi``."""
-        y = self._y
-        kernels.velocity_rows(y[0], y[1], self.basis, self.band, *chunks[:3], lo, hi)
-        if self.with_T:
-            np.copyto(chunks[3], y[2][:, lo:hi, :self.grid.nz_kept])
-        clock = self.fft.clock
-        if clock:
-            clock.lap("frame to Cartesian")
-
-    def _advection_rows(self, chunks, lo, hi) -> None:
-        """``finish`` of the round trip: the advection of ky rows ``lo:hi`` from
-        their transformed products (order of :meth:`_block_products`)."""
-        stresses, fluxes = self._products_in_order(chunks)
-        kernels.advection_rows(stresses, fluxes, self.scale, self.band, self.kvec, self.basis,
-                               self._out, lo, hi)
-        clock = self.fft.clock
-        if clock:
-            clock.lap("advection assembly")
-
-    # ------------------------------------------------------------ whole-array pass
-    def _products_whole(self, y: np.ndarray, out: np.ndarray) -> None:
-        self.to_physical(y)
-        if self.want_speed:
-            self._speed_limits()
-        if self.advection is None:
-            return
-        u, v, w = self.velocity
-        # the advection reads the band only: band-pruned forward transforms
-        q, P, fwd = self.product, self.P, self.fft.forward_band
-        if self.with_T:
-            # the three fluxes from one read: uT, vT into the product arrays, wT over T
-            T = self.temperature
-            kernels.scalar_fluxes(u, v, w, T, q, self._uu_ww)
-            fwd(q, P[0])
-            fwd(self._uu_ww, P[1])
-            fwd(T, P[2])
-            kernels.scalar_advection(P, self.mask, self.scale, self.band, self.kvec, out[2])
-        elif self.has_T:
-            out[2] = 0
-        # the velocity is not needed past this point: one pass writes three of
-        # the stresses over it and the other two into q and uu - ww
-        uu_ww = self._uu_ww
-        kernels.stresses(u, v, w, q, uu_ww)   # u <- uw, v <- vv - ww, w <- vw, q = uv
-        fwd(uu_ww, P[0])
-        fwd(v, P[1])
-        fwd(q, P[2])
-        fwd(u, P[3])
-        fwd(w, P[4])
-        clock = self.fft.clock
-        if clock:
-            clock.lap("transforms and products")
-        kernels.momentum_advection(P, self.mask, self.scale, self.band, self.kvec,
+    def assemble_advection(self, P, out) -> None:
+        """``out`` (all of it) from the transformed products ``P`` of :meth:`products`."""
+        stresses, fluxes = self._in_order(P)
+        if fluxes is not None:
+            kernels.scalar_advection(fluxes, self.mask, self.scale, self.band, self.kvec,
+                                     out[2])
+        kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
-        if clock:
-            clock.lap("advection assembly")
+
+    def assemble_advection_rows(self, chunks, out, lo, hi) -> None:
+        """:meth:`assemble_advection` of the local ky rows ``lo:hi`` from their transformed
+        products (``(nx, hi - lo, nz_kept)`` chunks; compiled kernels only)."""
+        stresses, fluxes = self._in_order(chunks)
+        kernels.advection_rows(stresses, fluxes, self.scale, self.band, self.kvec, self.basis,
+                               out, lo, hi)
 
     def __call__(self, y: np.ndarray, t: float, out: np.ndarray) -> np.ndarray:
-        g = self.grid
-        if self.fft.clock:
-            self.fft.clock.start()  # the stage update before this call is not a phase
+        g, clock = self.grid, self.fft.clock
+        if clock:
+            clock.start()  # the stage update before this call is not a phase
         if self.advection is None:
             out[...] = 0
         if self.advection is not None or self.want_speed:
-            if self.blocks:
-                self._products_by_blocks(y, out)
-            else:
-                self._products_whole(y, out)
+            self._rate = self._speed2 = 0.0
+            self.products_pass(y, out)
+            if self.want_speed:
+                comm = self.fft.comm
+                self.cfl_rate = float(comm.max(self._rate))
+                self.max_speed = float(np.sqrt(comm.max(self._speed2)))
+                if clock:
+                    clock.lap("wait")
+            if self.has_T and not self.with_T and self.advection is not None:
+                out[2] = 0
         for idx, fa, fp in self.forcing:
             out[0][idx] += fa
             out[1][idx] += fp

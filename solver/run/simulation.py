@@ -22,6 +22,7 @@ import pyfftw
 
 from shearmix.solver.case import Case
 from shearmix.solver.compute import kernels
+from shearmix.solver.compute.options import ComputeOptions
 from shearmix.solver.compute.parallel import world
 from shearmix.solver.compute.transforms import SlabTransform, load_wisdom, save_wisdom
 from shearmix.solver.files.slabfile import WriteFailed
@@ -95,17 +96,22 @@ class Simulation:
     comm : communicator (default: MPI world, or serial)
     model : override the case's model (tests build reduced models this way)
     initial : apply the case's initial state (default True)
+    options : how to compute (default: from the case's ``compute.*`` keys)
     """
 
-    def __init__(self, case: Case, comm=None, model: Model | None = None, initial: bool = True):
+    def __init__(self, case: Case, comm=None, model: Model | None = None, initial: bool = True,
+                 options: ComputeOptions | None = None):
         self.case = case
+        self.options = options if options is not None else ComputeOptions.from_case(case)
+        kernels.set_backend(self.options.kernels)
         self.comm = comm if comm is not None else world()
         self.grid = Grid(case.shape, case.lengths, self.comm.rank, self.comm.size)
-        wisdom = case.get("compute.wisdom")
-        load_wisdom(wisdom, self.comm)
-        self.fft = SlabTransform(self.grid, self.comm, threads=default_threads(case, self.comm),
-                                 effort=case.get("compute.fftw_effort"))
-        save_wisdom(wisdom, self.comm)
+        load_wisdom(self.options.wisdom, self.comm)
+        self.fft = SlabTransform(self.grid, self.comm,
+                                 threads=default_threads(case, self.comm),
+                                 effort=self.options.fftw_effort,
+                                 transpose=self.options.transpose)
+        save_wisdom(self.options.wisdom, self.comm)
         self.basis = CrayaHerring(self.grid)
         self.model = model if model is not None else model_for(case)
         self.fields = self.model.fields
@@ -113,7 +119,8 @@ class Simulation:
         if kernels.use_numba():
             self.operator.prepare()
         self.tendency = PseudoSpectralTendency(self.grid, self.basis, self.fft, self.fields,
-                                               self.model.advection, self.model.forcing)
+                                               self.model.advection, self.model.forcing,
+                                               product_pass=self.options.product_pass)
         self.state = pyfftw.empty_aligned((len(self.fields),) + self.grid.spectral_shape,
                                           dtype=np.complex128)
         # invariant: zero outside the 2/3-rule band (every way in - set_physical,

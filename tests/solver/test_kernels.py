@@ -14,19 +14,18 @@ pytestmark = pytest.mark.skipif(not kernels.HAVE_NUMBA, reason="numba not instal
 @pytest.mark.parametrize("model,params", [("lowpe", {"Re": 80.0, "BPe": 2.0}),
                                           ("boussinesq", {"Re": 80.0, "B": 2.0, "Pr": 0.5})])
 def test_numba_and_numpy_steps_agree(make_case, model, params):
-    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 12, "Nz": 8},
-                     time={"dt": 0.02, "adaptive": False},
-                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
     states = {}
     for mode in ("numba", "numpy"):
-        kernels.set_backend(mode)
-        assert kernels.use_numba() == (mode == "numba")
+        case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 12, "Nz": 8},
+                         time={"dt": 0.02, "adaptive": False}, compute={"kernels": mode},
+                         initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
         sim = Simulation(case)
+        assert kernels.use_numba() == (mode == "numba")
         sim.add_mode(1, 1, 1, "poloidal", 0.3)
         for _ in range(5):
             sim.advance()
         states[mode] = sim.state.copy()
-    kernels.set_backend(None)
+    kernels.set_backend("numba")
     ref = states["numpy"]
     assert np.abs(ref).max() > 0.05
     assert np.abs(states["numba"] - ref).max() < 1e-13 * np.abs(ref).max()
@@ -43,33 +42,11 @@ def test_numba_and_numpy_diagnostics_agree(make_case, model, params):
     for mode in ("numba", "numpy"):
         kernels.set_backend(mode)
         got[mode] = sim.diagnostics()
-    kernels.set_backend(None)
+    kernels.set_backend("numba")
     for key, ref in got["numpy"].items():
         if isinstance(ref, float) and np.isfinite(ref):
             assert got["numba"][key] == pytest.approx(ref, rel=1e-12, abs=1e-300), key
     assert got["numpy"]["J"] != 0 and got["numpy"]["Kz"] > 0
-
-
-@pytest.mark.parametrize("backend", ["numba", "numpy"])
-@pytest.mark.parametrize("layout", ["separate", "second_over_f", "both_over_inputs"])
-def test_stress_pair_matches_plain_arithmetic(backend, layout):
-    """``f^2 - g^2`` and ``f g`` in one pass, also written over its own inputs."""
-    rng = np.random.default_rng(7)
-    f0, g0 = rng.standard_normal((2, 6, 5, 4))
-    f, g = f0.copy(), g0.copy()
-    if layout == "separate":
-        first, second = np.empty_like(f), np.empty_like(f)
-    elif layout == "second_over_f":
-        first, second = np.empty_like(f), f
-    else:
-        first, second = f, g
-    kernels.set_backend(backend)
-    try:
-        kernels.stress_pair(f, g, first, second)
-    finally:
-        kernels.set_backend(None)
-    np.testing.assert_allclose(first, f0 * f0 - g0 * g0, rtol=1e-15, atol=1e-15)
-    np.testing.assert_allclose(second, f0 * g0, rtol=1e-15, atol=1e-15)
 
 
 @pytest.mark.parametrize("backend", ["numba", "numpy"])
@@ -85,32 +62,28 @@ def test_fused_stresses_and_scalar_fluxes_match_plain_arithmetic(backend):
         kernels.scalar_fluxes(u, v, w, T, uT, vT)
         kernels.stresses(u, v, w, uv, uu_ww)
     finally:
-        kernels.set_backend(None)
+        kernels.set_backend("numba")
     for got, want in ((uT, u0 * T0), (vT, v0 * T0), (T, w0 * T0), (uv, u0 * v0),
                       (uu_ww, u0 * u0 - w0 * w0), (u, u0 * w0), (v, v0 * v0 - w0 * w0),
                       (w, v0 * w0)):
         np.testing.assert_allclose(got, want, rtol=1e-15, atol=1e-15)
 
 
-def test_kernel_switch_is_read_once_and_checked(monkeypatch):
-    """``SHEARMIX_KERNELS`` is read on first use (and again after ``set_backend(None)``);
-    an unknown value is an error naming the switch and the allowed values."""
-    monkeypatch.setenv("SHEARMIX_KERNELS", "numpy")
-    kernels.set_backend(None)
+def test_kernel_backend_comes_from_the_case(make_case):
+    """``compute.kernels`` picks the kernels (a mistyped value is refused in one
+    line naming the key); no environment variable is read by the engine."""
+    from shearmix.solver.case import CaseError
     try:
+        Simulation(make_case(compute={"kernels": "numpy"}))
         assert kernels.use_numba() is False
-        monkeypatch.setenv("SHEARMIX_KERNELS", "numba")
-        assert kernels.use_numba() is False       # read once
-        kernels.set_backend(None)
+        Simulation(make_case())
         assert kernels.use_numba() is True
-        monkeypatch.setenv("SHEARMIX_KERNELS", "fast")
-        kernels.set_backend(None)
-        with pytest.raises(kernels.KernelBackendError,
-                           match=r"SHEARMIX_KERNELS='fast': allowed are numba, numpy"):
-            kernels.use_numba()
+        with pytest.raises(CaseError, match=r"compute.kernels: must be one of numba, numpy"):
+            make_case(compute={"kernels": "fast"})
+        with pytest.raises(ValueError, match=r"compute.kernels: must be one of numba, numpy"):
+            kernels.set_backend("fast")
     finally:
-        monkeypatch.delenv("SHEARMIX_KERNELS")
-        kernels.set_backend(None)
+        kernels.set_backend("numba")
 
 
 def test_pair_solve_matches_numpy_linalg_solve():
@@ -144,7 +117,7 @@ def test_compiled_stage_update_matches_its_numpy_definition(make_case, model, pa
     got = [r.copy() for r in regs]
     kernels.set_backend("numba")
     kernels.stage_update(sim.operator, *got, *args)
-    kernels.set_backend(None)
+    kernels.set_backend("numba")
     ref = [r.copy() for r in regs]
     kernels.stage_update_numpy(sim.operator, *ref, *args)
     # after the last stage the stage register y is scratch (the NumPy path leaves L y there)

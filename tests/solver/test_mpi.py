@@ -9,6 +9,7 @@ import sys
 import numpy as np
 import pytest
 
+from shearmix.solver.compute import kernels
 from shearmix.solver.grid import Grid
 
 PROBE = os.path.join(os.path.dirname(__file__), "mpi_probe.py")
@@ -24,16 +25,13 @@ pytestmark = [pytest.mark.mpi,
                                  reason="no mpiexec on this machine")]
 
 
-def _launch(nranks, *args, transpose=None, physical_pass=None):
+def _launch(nranks, *args):
     env = dict(os.environ, OMP_NUM_THREADS="1")
-    for key in ("SHEARMIX_SERIAL", "SHEARMIX_TRANSPOSE", "SHEARMIX_PHYSICAL_PASS"):
+    for key in ("SHEARMIX_SERIAL", "SHEARMIX_TRANSPOSE", "SHEARMIX_PHYSICAL_PASS",
+                "SHEARMIX_PRODUCT_PASS", "SHEARMIX_KERNELS"):
         env.pop(key, None)
-    if transpose:
-        env["SHEARMIX_TRANSPOSE"] = transpose
-    if physical_pass:
-        env["SHEARMIX_PHYSICAL_PASS"] = physical_pass
     cmd = [_mpiexec(), "-n", str(nranks), sys.executable, PROBE, *args]
-    res = subprocess.run(cmd, capture_output=True, text=True, timeout=300, env=env)
+    res = subprocess.run(cmd, capture_output=True, text=True, timeout=600, env=env)
     assert res.returncode == 0, res.stderr[-2000:]
 
 
@@ -43,7 +41,7 @@ def test_distributed_fft_matches_numpy(tmp_path, nranks, transpose):
     """Both transposes: through node-shared memory (the default on one node) and
     by message passing (what runs across nodes)."""
     out = str(tmp_path / "fft.npz")
-    _launch(nranks, "fft", out, transpose=transpose)
+    _launch(nranks, "fft", out, transpose)
     r = np.load(out)
     assert int(r["size"]) == nranks
     assert str(r["transpose"]) == transpose
@@ -57,26 +55,42 @@ def test_distributed_fft_matches_numpy(tmp_path, nranks, transpose):
     assert int(r["counter"]) == (1 if transpose == "shared" else -1)
 
 
+#: the compiled kernels where Numba is installed (else both paths are NumPy's)
+COMPILED = "numba" if kernels.HAVE_NUMBA else "numpy"
+
+
+def _paths(nranks):
+    """Every way through the tendency on ``nranks`` ranks: product pass x transpose
+    x kernels (one rank has no transpose)."""
+    transposes = ("auto",) if nranks == 1 else ("shared", "alltoall")
+    return [f"{p}/{t}/{k}" for p in ("blocks", "whole") for t in transposes
+            for k in ("numba", "numpy")]
+
+
 @pytest.mark.parametrize("model", ["lowpe", "boussinesq"])
-def test_same_result_on_1_2_and_4_ranks(tmp_path, model):
-    """Against one rank with whole arrays: 1, 2 and 4 ranks either way of making
-    the products (block-wise round trips and whole arrays), and block-wise
-    with the transposes by message passing."""
+def test_same_result_on_1_2_and_4_ranks_along_every_path(tmp_path, model):
+    """Against one rank with whole arrays and the NumPy kernels (the plain
+    definitions): 1, 2 and 4 ranks, each product pass (block-wise round trips and
+    whole arrays), each transpose (node shared memory and Alltoall messages) and
+    each kernel backend (compiled and NumPy); each path checked to be the one taken."""
     states = {}
-    runs = [(1, "whole", None), (2, "whole", None), (4, "whole", None), (1, "blocks", None),
-            (2, "blocks", None), (4, "blocks", None), (2, "blocks", "alltoall")]
-    for n, kind, transpose in runs:
-        out = str(tmp_path / f"s{n}{kind}{transpose}.npz")
-        _launch(n, "steps", model, "50", out, physical_pass=kind, transpose=transpose)
+    for n in (1, 2, 4):
+        out = str(tmp_path / f"s{n}.npz")
+        paths = _paths(n)
+        _launch(n, "steps", model, "50", out, ",".join(paths))
         r = np.load(out)
         assert int(r["size"]) == n
-        states[n, kind, transpose] = (r["state"], float(r["t"]))
-    ref, t_ref = states[1, "whole", None]
+        for path in paths:
+            p, t, k = path.split("/")
+            want = "/".join((p, "single" if n == 1 else t, COMPILED if k == "numba" else k))
+            assert str(r[f"used_{path}"]) == want
+            states[n, path] = (r[f"state_{path}"], float(r[f"t_{path}"]))
+    assert len(states) == 4 + 8 + 8
+    ref, t_ref = states[1, "whole/auto/numpy"]
     assert np.abs(ref).max() > 0.1
-    for key in runs[1:]:
-        s, t = states[key]
-        assert t == pytest.approx(t_ref, rel=1e-12)
-        assert np.abs(s - ref).max() / np.abs(ref).max() < 1e-12
+    for key, (s, t) in states.items():
+        assert t == pytest.approx(t_ref, rel=1e-12), key
+        assert np.abs(s - ref).max() / np.abs(ref).max() < 1e-12, key
 
 
 def test_ranks_whose_columns_are_all_dropped(tmp_path):
@@ -84,11 +98,12 @@ def test_ranks_whose_columns_are_all_dropped(tmp_path):
     2/3-rule cutoff (5), so their round trips have no kept rows to transform,
     make or hand on; block-wise (shared memory and Alltoall) against one rank."""
     assert [int(Grid((16, 16, 8), (1.0,) * 3, r, 8).keep_y.sum()) for r in (3, 4)] == [0, 0]
-    _launch(1, "steps", "lowpe", "20", str(tmp_path / "one.npz"), physical_pass="whole")
-    ref = np.load(tmp_path / "one.npz")["state"]
-    for transpose in (None, "alltoall"):
-        out = str(tmp_path / f"eight{transpose}.npz")
-        _launch(8, "steps", "lowpe", "20", out, physical_pass="blocks", transpose=transpose)
-        r = np.load(out)
-        assert int(r["size"]) == 8
-        assert np.abs(r["state"] - ref).max() < 1e-12 * np.abs(ref).max()
+    _launch(1, "steps", "lowpe", "20", str(tmp_path / "one.npz"), "whole/auto/numba")
+    ref = np.load(tmp_path / "one.npz")["state_whole/auto/numba"]
+    paths = ["blocks/shared/numba", "blocks/alltoall/numba"]
+    out = str(tmp_path / "eight.npz")
+    _launch(8, "steps", "lowpe", "20", out, ",".join(paths))
+    r = np.load(out)
+    assert int(r["size"]) == 8
+    for path in paths:
+        assert np.abs(r[f"state_{path}"] - ref).max() < 1e-12 * np.abs(ref).max()

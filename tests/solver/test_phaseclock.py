@@ -33,9 +33,9 @@ BLOCK_PHASES = {"frame to Cartesian", "x inverse", "yz inverse", "products", "yz
 @pytest.mark.parametrize("kind,expected", [
     ("blocks", BLOCK_PHASES),
     ("whole", {"transforms and products", "advection assembly"})])
-def test_clock_covers_the_step_and_changes_nothing(make_case, monkeypatch, kind, expected):
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+def test_clock_covers_the_step_and_changes_nothing(make_case, kind, expected):
     case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
+                     compute={"product_pass": kind},
                      grid={"Nx": 16, "Ny": 16, "Nz": 8},
                      initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
     plain, timed = Simulation(case), Simulation(case)
@@ -57,14 +57,13 @@ def test_clock_covers_the_step_and_changes_nothing(make_case, monkeypatch, kind,
 @pytest.mark.parametrize("model,params,fields_in,fields_out", [
     ("lowpe", {"Re": 80.0, "BPe": 1.0}, 3, 5),
     ("boussinesq", {"Re": 80.0, "B": 1.0, "Pr": 1.0}, 4, 8)])
-def test_clock_counts_the_round_trips_work(make_case, monkeypatch, model, params, fields_in,
-                                           fields_out):
+def test_clock_counts_the_round_trips_work(make_case, model, params, fields_in, fields_out):
     """Per evaluation the round trip transforms the velocity (and T) in and the
     products out (solver/physics/tendency.py: 5 stresses, 3 fluxes of T): (y, z)
     transforms of every x-plane of each field, x-FFTs of each kept (ky, kz)
     column (2/3 rule, solver/grid.py) of each field, and no more."""
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 12, "Nz": 8},
+                     compute={"product_pass": "blocks"},
                      initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
     sim = Simulation(case)
     sim.advance()

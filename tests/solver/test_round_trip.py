@@ -3,8 +3,9 @@ against numpy.fft, and the tendency made by blocks against the whole-array pass.
 import numpy as np
 import pytest
 
-from shearmix.solver.compute import productpass, transforms
+from shearmix.solver.compute import productpass, roundtrip
 from shearmix.solver.compute.parallel import SerialComm
+from shearmix.solver.compute.roundtrip import RoundTrip, block_planes
 from shearmix.solver.compute.transforms import SlabTransform
 from shearmix.solver.grid import Grid
 from shearmix.solver.run.simulation import Simulation
@@ -17,14 +18,30 @@ def _products(blocks):
     np.multiply(b, c, out=c)   # an output written over an input
 
 
+def _whole_arrays_trip(trip, inputs, outputs, pointwise):
+    """A round trip from and into whole spectral arrays: its chunks copied out of
+    ``inputs`` and back into ``outputs`` (as the NumPy product pass does)."""
+    nkz = trip.fft.grid.nz_kept
+
+    def start(chunks, lo, hi):
+        for chunk, spec in zip(chunks, inputs):
+            np.copyto(chunk, spec[:, lo:hi, :nkz])
+
+    def finish(chunks, lo, hi):
+        for chunk, spec in zip(chunks, outputs):
+            np.copyto(spec[:, lo:hi, :nkz], chunk)
+
+    trip(inputs, outputs, pointwise, finish, start)
+
+
 @pytest.mark.parametrize("shape", [(12, 8, 10), (16, 18, 8)])
 def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
     # blocks of two x-planes, so that the sweep really goes block by block
-    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    monkeypatch.setattr(roundtrip, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
     grid = Grid(shape, (1.0, 2.0, 3.0))
     fft = SlabTransform(grid, SerialComm(), effort="estimate")
-    fft.prepare_round_trip(5)
-    assert fft.block_planes == 2
+    trip = RoundTrip(fft, 5)
+    assert block_planes(grid) == trip.plan.planes == 2
     rng = np.random.default_rng(5)
     nkz = grid.nz_kept
     spectra = [np.fft.rfftn(rng.standard_normal(shape)) for _ in range(3)]
@@ -37,7 +54,7 @@ def test_round_trip_matches_numpy_inside_the_band(shape, monkeypatch):
     for s, full in zip(spec, spectra):
         s[...] = full / np.prod(shape)   # normalised amplitudes, as the tendency's
         s[:, :, nkz:] = 1e3              # ... and never reads them
-    fft.round_trip(spec[:3], spec, _products)
+    _whole_arrays_trip(trip, spec[:3], spec, _products)
     u, v, w = fields
     expected = [u, v, v * w, u * v, u * u - w * w]
     keep = np.broadcast_to(grid.dealias, spec[0].shape)
@@ -54,11 +71,11 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
     (smallest buffers) or whole kept runs, each chunk the numpy.fft transform of
     the products inside the 2/3-rule band."""
     shape = (12, 16, 10)
-    monkeypatch.setattr(transforms, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
-    monkeypatch.setattr(transforms, "CHUNK_BYTES", chunk_bytes)
+    monkeypatch.setattr(roundtrip, "BLOCK_BYTES", 2 * shape[1] * shape[2] * 8)
+    monkeypatch.setattr(roundtrip, "CHUNK_BYTES", chunk_bytes)
     grid = Grid(shape, (1.0, 2.0, 3.0))
     fft = SlabTransform(grid, SerialComm(), effort="estimate")
-    fft.prepare_round_trip(5)
+    trip = RoundTrip(fft, 5)
     rng = np.random.default_rng(6)
     nkz, cy = grid.nz_kept, grid.cutoff[1]
     spectra = [np.fft.rfftn(rng.standard_normal(shape)) for _ in range(3)]
@@ -79,9 +96,13 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
             assert np.abs(got - ref[:, lo:hi])[keep].max() < 1e-12 * np.abs(ref).max()
         seen.extend(range(lo, hi))
 
-    fft.round_trip(spec[:3], spec, _products, finish)
+    def copy_in(chunks, lo, hi):
+        for c, s in zip(chunks, spec):
+            np.copyto(c, s[:, lo:hi, :nkz])
+
+    trip(spec[:3], spec, _products, finish, copy_in)
     assert seen == list(np.flatnonzero(grid.keep_y))
-    # the inputs made a chunk at a time too (start): the same products
+    # the inputs made a chunk at a time (start): the same products
     made = []
 
     def start(chunks, lo, hi):
@@ -96,24 +117,25 @@ def test_round_trip_hands_chunks_of_kept_rows_to_finish(monkeypatch, chunk_bytes
         w_[...] = 7.0   # work arrays only: what they hold is not read
     for sp in work[:3]:
         sp[:, ~grid.keep_y] = 0   # (but the rows outside the kept ky stay zero)
-    fft.round_trip(work[:3], work, _products, finish, start)
+    trip(work[:3], work, _products, finish, start)
     assert made == seen == list(np.flatnonzero(grid.keep_y))
-    widths = {hi - lo for lo, hi in fft._trip["chunks"]}
+    widths = {hi - lo for lo, hi in trip.plan.chunks}
     assert widths == ({1} if chunk_bytes == 1 else {cy + 1, cy})
 
 
-def test_round_trip_needs_its_plans():
+def test_round_trip_refuses_more_fields_than_planned():
     fft = SlabTransform(Grid((8, 8, 8), (1.0, 1.0, 1.0)), SerialComm(), effort="estimate")
-    with pytest.raises(RuntimeError, match="prepare_round_trip"):
-        fft.round_trip([fft.spectral], [fft.spectral])
+    trip = RoundTrip(fft, 1)
+    with pytest.raises(ValueError, match="round trip of 2 fields, planned for 1"):
+        trip([fft.spectral], [fft.spectral, fft.empty_spectral()], None, None, None)
 
 
-def _tendency_both_ways(make_case, monkeypatch, model, params):
-    case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 12},
-                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4})
+def _tendency_both_ways(make_case, model, params, kernels="numba"):
     out = {}
     for kind in ("whole", "blocks"):
-        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 12},
+                         initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 4},
+                         compute={"product_pass": kind, "kernels": kernels})
         sim = Simulation(case)
         assert sim.tendency.blocks == (kind == "blocks")
         sim.tendency.want_speed = True
@@ -123,10 +145,11 @@ def _tendency_both_ways(make_case, monkeypatch, model, params):
     return out
 
 
+@pytest.mark.parametrize("kernels", ["numba", "numpy"])
 @pytest.mark.parametrize("model,params", [("lowpe", {"Re": 50.0, "BPe": 2.0}),
                                           ("boussinesq", {"Re": 50.0, "B": 2.0, "Pr": 0.5})])
-def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, monkeypatch, model, params):
-    out = _tendency_both_ways(make_case, monkeypatch, model, params)
+def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, model, params, kernels):
+    out = _tendency_both_ways(make_case, model, params, kernels)
     (nw, cw, sw, fw), (nb, cb, sb, fb) = out["whole"], out["blocks"]
     scale = np.abs(nw).max()
     assert scale > 1e-3
@@ -140,13 +163,12 @@ def test_tendency_by_blocks_equals_the_whole_array_pass(make_case, monkeypatch, 
             assert np.abs(a - b).max() < 1e-12 * max(np.abs(a).max(), 1.0)
 
 
-def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
-    case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
-                     grid={"Nx": 16, "Ny": 16, "Nz": 8},
-                     initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
+def test_steps_by_blocks_follow_the_whole_array_pass(make_case):
     states = {}
     for kind in ("whole", "blocks"):
-        monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", kind)
+        case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
+                         grid={"Nx": 16, "Ny": 16, "Nz": 8}, compute={"product_pass": kind},
+                         initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 2})
         sim = Simulation(case)
         for _ in range(20):
             sim.advance()
@@ -156,22 +178,16 @@ def test_steps_by_blocks_follow_the_whole_array_pass(make_case, monkeypatch):
     assert np.abs(a - b).max() < 1e-10 * np.abs(a).max()
 
 
-def test_physical_pass_follows_the_cache(monkeypatch):
-    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
+def test_product_pass_follows_the_cache(monkeypatch):
     monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda: 1000)
-    assert productpass.physical_pass(1000) == "whole"
-    assert productpass.physical_pass(1001) == "blocks"
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
-    assert productpass.physical_pass(10 ** 12) == "whole"
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
-    with pytest.raises(productpass.PhysicalPassError,
-                       match="SHEARMIX_PHYSICAL_PASS='tiles'.*blocks, whole"):
-        productpass.physical_pass(1)
+    assert productpass.choose_product_pass("auto", 1000) == "whole"
+    assert productpass.choose_product_pass("auto", 1001) == "blocks"
+    assert productpass.choose_product_pass("whole", 10 ** 12) == "whole"
+    assert productpass.choose_product_pass("blocks", 1) == "blocks"
 
 
 def test_tendency_counts_the_fields_of_all_ranks_on_the_node(make_case, monkeypatch):
     """5 product fields (low-Peclet) of the whole 16^3 grid on one rank: 163840 bytes."""
-    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
     case = make_case()
     for cache, kind in ((5 * 16 ** 3 * 8, "whole"), (5 * 16 ** 3 * 8 - 1, "blocks")):
         monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda c=cache: c)
@@ -214,14 +230,14 @@ def test_reported_cache_capped_per_cpu_sharing_it(tmp_path):
 
 
 @pytest.mark.parametrize("scheme", ["cb3c", "ars343"])
-def test_owned_output_zeroed_once_changes_nothing(make_case, monkeypatch, scheme):
+def test_owned_output_zeroed_once_changes_nothing(make_case, scheme):
     """The chunked pass writes the zeros outside the kept ky of the stepper's own
     register once (and the low-storage stage copies the band only): the same
     states, bit for bit, as rezeroing and copying everything each time, with the
     low-storage driver and with the reference driver's fresh stage arrays."""
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
     case = make_case(model="boussinesq", parameters={"Re": 80.0, "B": 1.0, "Pr": 1.0},
                      grid={"Nx": 16, "Ny": 12, "Nz": 8}, time={"scheme": scheme},
+                     compute={"product_pass": "blocks"},
                      initial={"kind": "laminar_noise", "amplitude": 0.3, "seed": 8})
     fast, plain = Simulation(case), Simulation(case)
     assert fast.tendency.chunked and fast.tendency.owned_output is fast._n0
@@ -236,17 +252,17 @@ def test_owned_output_zeroed_once_changes_nothing(make_case, monkeypatch, scheme
     assert np.array_equal(fast.state, plain.state)
 
 
-def test_forcing_in_a_dropped_row_does_not_pile_up(make_case, monkeypatch):
+def test_forcing_in_a_dropped_row_does_not_pile_up(make_case):
     """A forcing wavenumber past the 2/3-rule cutoff (kf = 6 on Ny = 16, cutoff 5;
     case files refuse it, the tendency does not rely on that) lands in a row the
     chunked pass does not write: that row of the stepper's register is rezeroed
     every evaluation, so it holds one forcing, not several."""
     from shearmix.solver.physics.tendency import PseudoSpectralTendency
     from shearmix.solver.physics.terms import ShearForcing
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
-    sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3}))
+    sim = Simulation(make_case(initial={"kind": "laminar_noise", "amplitude": 0.1, "seed": 3},
+                               compute={"product_pass": "blocks"}))
     nl = PseudoSpectralTendency(sim.grid, sim.basis, sim.fft, sim.fields, sim.model.advection,
-                                ShearForcing(F0=1.0, kf=6.0))
+                                ShearForcing(F0=1.0, kf=6.0), product_pass="blocks")
     assert nl.chunked and nl._forcing_in_gaps
     assert not sim.tendency._forcing_in_gaps      # the case's own forcing is kept
     nl.owned_output = out = np.zeros_like(sim.state)

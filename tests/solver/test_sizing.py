@@ -17,7 +17,6 @@ def test_estimate_counts_the_arrays_of_each_pass():
 
 
 def test_check_reports_the_pass_the_cache_implies(make_case, monkeypatch):
-    monkeypatch.delenv("SHEARMIX_PHYSICAL_PASS", raising=False)
     case = make_case(grid={"Nx": 128, "Ny": 128, "Nz": 128})
     monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda: 32 * 2 ** 20)
     info = derived(case, 1)
@@ -25,3 +24,6 @@ def test_check_reports_the_pass_the_cache_implies(make_case, monkeypatch):
     assert info["bytes per point"] == bytes_per_point(2, 1, blocks=True)
     monkeypatch.setattr(productpass, "last_level_cache_bytes", lambda: 2 ** 30)
     assert derived(case, 1)["product pass"] == "whole arrays"
+    # a pass set in the case is the one reported, whatever the cache
+    case = make_case(grid={"Nx": 128, "Ny": 128, "Nz": 128}, compute={"product_pass": "blocks"})
+    assert derived(case, 1)["product pass"] == "block-wise"

@@ -13,7 +13,7 @@ def _record(model, n, ranks, step, floor):
     return {"model": model, "n": n, "ranks": ranks, "step_seconds": step,
             "floor_seconds": floor, "ratio": step / floor, "ratio_cpu": step / floor,
             "transforms_per_step": 32, "first_step_seconds": 0.5, "bytes_per_point_net": 140.0,
-            "physical_pass": "blocks"}
+            "product_pass": "blocks"}
 
 
 def test_markdown_tables_and_rank_speed_up():
@@ -25,42 +25,37 @@ def test_markdown_tables_and_rank_speed_up():
     assert "| lowpe | 128^3 | 0.55 | 0.55 - 0.55 |" in text  # 0.22 / 0.40
 
 
-@pytest.mark.parametrize("physical_pass", ["whole", "blocks"])
-def test_worker_counts_the_fewest_transforms_per_stage(monkeypatch, physical_pass):
+@pytest.mark.parametrize("product_pass", ["whole", "blocks"])
+def test_worker_counts_the_fewest_transforms_per_stage(product_pass):
     """Per explicit stage: 3 inverse (velocity) + 5 forward (the stresses uu-ww, vv-ww,
     uv, uw, vw; the trace is a gradient) for low-Pé; +1 inverse (T) and +3 forward
     (uT, vT, wT) for the full model. Common practice for divergence-form advection."""
     from steps import worker
 
     from shearmix.solver.run.imex import TABLEAUX
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", physical_pass)
     stages = TABLEAUX["cb3c"].stages
     for model, per_stage in (("lowpe", 8), ("boussinesq", 12)):
-        rec = worker(model, 16, 2)
-        assert rec["physical_pass"] == physical_pass
+        rec = worker(model, 16, 2, product_pass=product_pass)
+        assert rec["product_pass"] == product_pass
         assert rec["transforms_per_step"] == stages * per_stage
         assert rec["step_seconds"] > 0 and rec["floor_seconds"] > 0
         assert rec["bytes_per_point"] > 0
 
 
-def test_passes_worker_times_both_product_passes_in_one_process(monkeypatch):
+def test_passes_worker_times_both_product_passes_in_one_process():
     from steps import passes_worker
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
     rec = passes_worker("lowpe", 16, 2)
     assert rec["whole_seconds"] > 0 and rec["blocks_seconds"] > 0
     assert rec["blocks_vs_whole"] == rec["blocks_seconds"] / rec["whole_seconds"]
-    import os
-    assert os.environ["SHEARMIX_PHYSICAL_PASS"] == "whole"   # the caller's choice restored
     text = markdown({"version": "x", "machine": "m", "records": [],
                      "extras": {"passes_lowpe_1": rec}})
     assert "- lowpe 16^3, 1 rank(s): block-wise" in text
 
 
-def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
+def test_phases_worker_accounts_for_the_whole_step():
     from steps import phases_table, phases_worker
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
-    rec = phases_worker("lowpe", 16, 3)
-    assert rec["physical_pass"] == "blocks" and rec["ranks"] == 1
+    rec = phases_worker("lowpe", 16, 3, product_pass="blocks")
+    assert rec["product_pass"] == "blocks" and rec["ranks"] == 1
     (ms,) = rec["ms_per_step"]
     laps = sum(v for k, v in ms.items() if k not in ("rest", "step"))
     assert ms["rest"] >= 0 and ms["step"] > 0
@@ -90,10 +85,9 @@ def test_phases_worker_accounts_for_the_whole_step(monkeypatch):
 
 
 @pytest.mark.mpi
-def test_phases_on_two_ranks_include_the_waits(monkeypatch):
+def test_phases_on_two_ranks_include_the_waits():
     from steps import launch
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
-    rec = launch("boussinesq", 16, 2, 2, worker="--phases-worker")
+    rec = launch("boussinesq", 16, 2, 2, worker="--phases-worker", product_pass="blocks")
     assert rec["ranks"] == 2 and len(rec["ms_per_step"]) == 2
     for ms in rec["ms_per_step"]:
         assert "wait" in ms and ms["rest"] >= 0
@@ -102,17 +96,3 @@ def test_phases_on_two_ranks_include_the_waits(monkeypatch):
     # the two ranks' work adds up to one rank's: 4 fields in, 8 out, 16 planes
     for phase, planes in (("yz inverse", 4 * 4 * 16), ("yz forward", 4 * 8 * 16)):
         assert sum(w[phase] for w in rec["work_per_step"]) == planes
-
-
-@pytest.mark.mpi
-def test_schedule_worker_compares_claimed_and_own_planes(monkeypatch):
-    from steps import launch
-    # the worker makes block-wise simulations whatever the size or the caller asks
-    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "whole")
-    rec = launch("lowpe", 16, 2, 2, worker="--schedule-worker")
-    assert rec["ranks"] == 2 and rec["static_seconds"] > 0 and rec["dynamic_seconds"] > 0
-    assert rec["physical_pass"] == "blocks"
-    assert rec["dynamic_vs_static"] == rec["dynamic_seconds"] / rec["static_seconds"]
-    text = markdown({"version": "x", "machine": "m", "records": [],
-                     "extras": {"schedule_lowpe_2": rec}})
-    assert "- lowpe 16^3, 2 ranks: blocks claimed dynamically" in text

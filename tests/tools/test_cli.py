@@ -80,14 +80,18 @@ def test_unknown_physical_pass_is_bad_input(cli_process, case_file, tmp_path, mo
     monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "tiles")
     r = cli_process("run", str(case_file), "--output", "out", cwd=tmp_path)
     assert r.returncode == 2
-    assert "SHEARMIX_PHYSICAL_PASS='tiles': allowed are blocks, whole" in r.stderr
+    assert "SHEARMIX_PHYSICAL_PASS='tiles': allowed are auto, blocks, whole" in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "out" / "timeseries.h5").exists()
 
 
 @pytest.mark.parametrize("key,value,allowed", [("SHEARMIX_KERNELS", "fast", "numba, numpy"),
                                                ("SHEARMIX_PHYSICAL_PASS", "tiles",
-                                                "blocks, whole")])
+                                                "auto, blocks, whole"),
+                                               ("SHEARMIX_PRODUCT_PASS", "tiles",
+                                                "auto, blocks, whole"),
+                                               ("SHEARMIX_TRANSPOSE", "mpi",
+                                                "auto, shared, alltoall")])
 def test_bad_environment_switch_exits_2_and_writes_nothing(cli_process, case_file, tmp_path,
                                                            monkeypatch, key, value, allowed):
     """A mistyped engine switch is refused in one line naming it and what is allowed."""
@@ -97,3 +101,26 @@ def test_bad_environment_switch_exits_2_and_writes_nothing(cli_process, case_fil
     assert r.stderr.strip().count("\n") == 0
     assert f"{key}={value!r}" in r.stderr and allowed in r.stderr
     assert not (tmp_path / "bad").exists()
+
+
+@pytest.mark.parametrize("var", ["SHEARMIX_PRODUCT_PASS", "SHEARMIX_PHYSICAL_PASS"])
+def test_environment_sets_the_compute_keys_and_set_wins(var):
+    """The environment is read once, by the command line, as defaults of ``--set``;
+    the old name of the product pass still works."""
+    from shearmix.tools.cli import environment_settings
+    env = {var: "blocks", "SHEARMIX_KERNELS": "numpy", "SHEARMIX_TRANSPOSE": "alltoall"}
+    assert environment_settings(env) == ["compute.product_pass=blocks",
+                                         "compute.transpose=alltoall", "compute.kernels=numpy"]
+    assert environment_settings({}) == []
+
+
+def test_environment_choice_is_recorded_in_the_run_folder(cli_process, case_file, tmp_path,
+                                                          monkeypatch):
+    monkeypatch.setenv("SHEARMIX_PHYSICAL_PASS", "blocks")
+    r = cli_process("run", str(case_file), "--output", "env", cwd=tmp_path)
+    assert r.returncode == 0, r.stderr
+    assert "product_pass: blocks" in (tmp_path / "env" / "case.yaml").read_text()
+    r = cli_process("run", str(case_file), "--output", "env2", "--set",
+                    "compute.product_pass=whole", cwd=tmp_path)
+    assert r.returncode == 0, r.stderr
+    assert "product_pass: whole" in (tmp_path / "env2" / "case.yaml").read_text()
