@@ -622,6 +622,7 @@ def warm_up() -> None:
         advection_rows(chunks[:5], chunks[5:], 1.0, band, kvec, frame, out, 0, width)
     # diagnostics and the stage update
     z = spectral()
+    z.flags.writeable = False  # diagnostics read the state through the step's read-only view
     small = np.zeros((2, 2, 2), dtype=np.complex128)
     r = np.ones((2, 2, 2))
     keep = np.ones(2, dtype=np.bool_)
