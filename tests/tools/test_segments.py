@@ -153,3 +153,21 @@ def test_series_figure_marks_the_change(two_segments, tmp_path, monkeypatch):
         xs = [line.get_xdata()[0] for line in ax.get_lines() if line.get_linestyle() == "--"]
         assert xs == [RESTART["t"]]
     assert "segment 1: parameters.Re 20 -> 25" in [t.get_text() for t in figs[0].axes[0].texts]
+
+
+def test_fit_says_which_segments_and_warns_across(tmp_path, cli):
+    """Rows on the exact power law y = x^-0.5: the fit itself is unchanged; the notes
+    say which segment each row averaged and warn for a row averaged across changes."""
+    from shearmix.tools.analysis.summary import write_csv
+    rows = [{"run": f"r{i}", "segment": seg, "segments": n, "BPe": x, "D_flux": x ** -0.5}
+            for i, (x, seg, n) in enumerate([(1.0, 0, 1), (4.0, 1, 2), (16.0, "all", 3)])]
+    write_csv(rows, tmp_path / "table.csv")
+    res = cli("fit", str(tmp_path / "table.csv"), "--x", "BPe", "--y", "D_flux")
+    assert res.returncode == 0, res.stderr
+    assert "p = -0.5" in res.stdout
+    assert "r1: segment 1 of 2" in res.stdout
+    assert "warning: r2 averaged across all its 3 segments (crosses a change)" in res.stdout
+    write_csv([{k: v for k, v in r.items() if k not in ("segment", "segments")} for r in rows],
+              tmp_path / "old.csv")
+    res = cli("fit", str(tmp_path / "old.csv"), "--x", "BPe", "--y", "D_flux")
+    assert "records no segments" in res.stdout

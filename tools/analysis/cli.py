@@ -89,13 +89,16 @@ def cmd_summary(args):
 
 def cmd_fit(args):
     """Handler of ``fit``: power law of two table columns with its interval."""
-    from shearmix.tools.analysis.fits import fit_table
+    from shearmix.tools.analysis.fits import fit_table, segment_notes
 
     try:
         fit, comp = fit_table(args.table, args.x, args.y, x_range=args.range,
                               confidence=args.confidence, use_errors=not args.no_errors)
+        notes = segment_notes(args.table)
     except (ValueError, OSError) as exc:
         return _fail(str(exc))
+    for note in notes:
+        print(f"  {note}")
     pct = 100 * fit.confidence
     print(f"{args.y} = A * {args.x}^p over {args.x} in [{fit.x_range[0]:g}, {fit.x_range[1]:g}] "
           f"({fit.n} runs)")
