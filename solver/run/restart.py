@@ -41,6 +41,7 @@ from shearmix.solver.files.checkpoint import (
     set_aside,
 )
 from shearmix.solver.files.fileheader import history_of, now
+from shearmix.solver.files.series import drop_segments_from
 from shearmix.solver.files.slabfile import agree
 from shearmix.solver.physics.terms import quasi_static
 from shearmix.solver.version import __version__
@@ -185,7 +186,8 @@ def truncate_series(path: str, step: int) -> int:
     """Drop the records of ``step`` and later from a time-series file; return how many.
 
     A run killed after its last checkpoint leaves records the restarted run
-    will write again; removing them keeps ``t`` and ``step`` increasing. Call
+    will write again; removing them keeps ``t`` and ``step`` increasing. The
+    segments that began there go with them (the restart's case decides anew). Call
     on rank 0 only, after the checkpoint has been read successfully.
     """
     import h5py
@@ -203,4 +205,5 @@ def truncate_series(path: str, step: int) -> int:
                 if isinstance(ds, h5py.Dataset) and ds.maxshape and ds.maxshape[0] is None \
                         and ds.shape[0] == len(steps):
                     ds.resize((keep,) + ds.shape[1:])
+        drop_segments_from(fh.attrs, step)
     return dropped

@@ -2,7 +2,7 @@
 
     shearmix summary RUN_DIR... [--start T] [--csv FILE] [--json FILE]
                      [--thresholds FILE.yaml] [--kmax-etak-min X]
-                     [--min-correlation-times N] [--pe-turb-max X]
+                     [--min-correlation-times N] [--pe-turb-max X] [--segment N|all]
     shearmix fit TABLE.csv --x BPe --y Lz_turb [--range LO HI]
                  [--confidence C] [--no-errors]
 
@@ -29,6 +29,15 @@ def _fail(message):
     return EXIT_BAD_INPUT
 
 
+def _segment(text):
+    if text == "all":
+        return "all"
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--segment: expected a whole number or 'all', got {text!r}") from None
+
+
 def _fmt(mean, err):
     if not math.isfinite(mean):
         return "-"
@@ -37,6 +46,10 @@ def _fmt(mean, err):
 
 def _print_row(row, out):
     print(f"run {row['run']}  ({row['model']}, Re={row['Re']:g}, BPe={row['BPe']:g})", file=out)
+    if row["segments"] > 1:
+        where = "all segments" if row["segment"] == "all" else \
+            f"segment {row['segment']} of {row['segments']} (from t = {row['segment_t']:.6g})"
+        print(f"  averaged    {where}", file=out)
     print(f"  window [{row['t_start']:.6g}, {row['t_end']:.6g}] ({row['steady_method']}), "
           f"{row['correlation_times']:.3g} autocorrelation times", file=out)
     for q in _SHOWN:
@@ -57,7 +70,8 @@ def cmd_summary(args):
         th = RegimeThresholds.from_yaml(args.thresholds) if args.thresholds else RegimeThresholds()
         opts = SummaryOptions(start=args.start, kmax_etaK_min=args.kmax_etak_min,
                               min_correlation_times=args.min_correlation_times,
-                              pe_turb_max=args.pe_turb_max, thresholds=th)
+                              pe_turb_max=args.pe_turb_max, thresholds=th,
+                              segment=args.segment)
         rows = [summarize_run(d, opts) for d in args.run_dirs]
     except (ValueError, OSError) as exc:
         return _fail(str(exc))
@@ -75,13 +89,16 @@ def cmd_summary(args):
 
 def cmd_fit(args):
     """Handler of ``fit``: power law of two table columns with its interval."""
-    from shearmix.tools.analysis.fits import fit_table
+    from shearmix.tools.analysis.fits import fit_table, segment_notes
 
     try:
         fit, comp = fit_table(args.table, args.x, args.y, x_range=args.range,
                               confidence=args.confidence, use_errors=not args.no_errors)
+        notes = segment_notes(args.table)
     except (ValueError, OSError) as exc:
         return _fail(str(exc))
+    for note in notes:
+        print(f"  {note}")
     pct = 100 * fit.confidence
     print(f"{args.y} = A * {args.x}^p over {args.x} in [{fit.x_range[0]:g}, {fit.x_range[1]:g}] "
           f"({fit.n} runs)")
@@ -109,6 +126,9 @@ def add_arguments(subparsers):
                    help="too-short warning below this many autocorrelation times (default 50)")
     p.add_argument("--pe-turb-max", type=float, default=1.0, metavar="X",
                    help="low-Peclet validity warning above this Pe_turb (default 1)")
+    p.add_argument("--segment", type=_segment, default=None, metavar="N|all",
+                   help="segment of the series to average: a number (0 the first, -1 the last, "
+                        "the default) or 'all' to cross the changes (with a warning)")
     p.set_defaults(func=cmd_summary)
 
     p = subparsers.add_parser("fit", help="power-law fit of two columns of a summary table")

@@ -225,6 +225,27 @@ def _column(table, name, path):
     return out
 
 
+def segment_notes(path):
+    """One-line notes on the segments a summary table's rows averaged
+    (:mod:`shearmix.tools.analysis.segments`): which ones, and a warning for each
+    row averaged across changes (``segment`` = ``all``) or from a table that
+    records none."""
+    table = read_table(path)
+    if "segment" not in table:
+        return [f"warning: {path} records no segments (written by an older shearmix): its "
+                "rows may average across restarts that changed the case"]
+    names = table.get("run") or table.get("member") or [str(i) for i in range(len(table["segment"]))]
+    notes = []
+    multi = [(n, s, c) for n, s, c in zip(names, table["segment"], table.get("segments", ["1"] * len(names)))
+             if c not in ("", "1")]
+    for n, seg, count in multi:
+        if seg == "all":
+            notes.append(f"warning: {n} averaged across all its {count} segments (crosses a change)")
+        else:
+            notes.append(f"{n}: segment {seg} of {count}")
+    return notes
+
+
 def fit_table(path, x, y, x_range=None, confidence=0.95, use_errors=True):
     """Fit ``y = A x^p`` to two columns of a summary table.
 

@@ -28,6 +28,22 @@ Decision, in this order (first match wins):
 4. ``eps_cv > eps_cv_max`` or ``eta < eta_min`` -> ``'intermittent'``;
 5. otherwise -> ``'stratified_turbulence'``.
 
+Before these rules, :func:`flow_state` looks at the time series for a flow
+that is not turbulent at all, whose label is then what it is:
+
+* ``'growing'``: the departure from the laminar flow ``u = U_L sin(kf y)``,
+  measured by ``q = sqrt(v_rms^2 + w_rms^2)`` (both vanish in the laminar
+  flow), grows by more than :data:`GROWTH_FACTOR` (10) over the window, by a
+  least-squares fit of ``ln q`` against ``t``: a linear instability still
+  growing, not a statistically steady state;
+* ``'laminar'``: otherwise, when ``q`` stays below :data:`LAMINAR_RATIO`
+  (1e-3) of ``u_rms`` over the whole window.
+
+Neither label is "intermittent", and the Kolmogorov-scale resolution test
+(``kmax eta_K``) does not apply to them: a laminar or growing flow is
+resolved when its few modes are (the spectral tail test still applies).
+Both numbers are a choice of this tool, not a published criterion.
+
 Default thresholds (:class:`RegimeThresholds`): ``viscous_ratio_min = 1``,
 ``isotropy_min = 0.6``, ``eps_cv_max = 0.5``, ``eta_min = 0.2``. These are a
 choice made for this tool, guided by the regime descriptions of DESIGN.md
@@ -42,10 +58,46 @@ from dataclasses import asdict, dataclass, fields
 
 import yaml
 
-__all__ = ["RegimeThresholds", "RegimeResult", "regime_numbers", "classify", "REGIMES"]
+import numpy as np
+
+__all__ = ["RegimeThresholds", "RegimeResult", "regime_numbers", "classify", "REGIMES",
+           "flow_state", "FLOW_REASONS", "GROWTH_FACTOR", "LAMINAR_RATIO"]
 
 #: Labels returned by :func:`classify`.
 REGIMES = ("isotropic", "stratified_turbulence", "intermittent", "viscous_layers", "undetermined")
+
+#: Growth of ``sqrt(v_rms^2 + w_rms^2)`` over the window above which a run is 'growing'.
+GROWTH_FACTOR = 10.0
+#: ``sqrt(v_rms^2 + w_rms^2) / u_rms`` below which (throughout) a run is 'laminar'.
+LAMINAR_RATIO = 1e-3
+
+FLOW_REASONS = {
+    "growing": f"departure from the laminar flow grows by more than {GROWTH_FACTOR:g} over the window",
+    "laminar": f"departure from the laminar flow below {LAMINAR_RATIO:g} of u_rms throughout",
+}
+
+
+def flow_state(t, series):
+    """``'growing'``, ``'laminar'`` or ``''`` (turbulent or unknown) from the series
+    ``u_rms``, ``v_rms``, ``w_rms`` over times ``t`` (rules in the module docstring)."""
+    if not all(k in series for k in ("u_rms", "v_rms", "w_rms")) or len(t) < 2:
+        return ""
+    n = len(t)
+    u, v, w = (np.asarray(series[k], dtype=float)[-n:] for k in ("u_rms", "v_rms", "w_rms"))
+    t = np.asarray(t, dtype=float)
+    q = np.sqrt(v * v + w * w)
+    ok = np.isfinite(q) & np.isfinite(u)
+    if np.count_nonzero(ok) < 2:
+        return ""
+    t, q, u = t[ok], q[ok], u[ok]
+    pos = q > 0
+    if np.count_nonzero(pos) >= 2 and t[pos][-1] > t[pos][0]:
+        rate = np.polyfit(t[pos], np.log(q[pos]), 1)[0]
+        if rate * (t[pos][-1] - t[pos][0]) > math.log(GROWTH_FACTOR):
+            return "growing"
+    if np.all(q <= LAMINAR_RATIO * u) and np.any(u > 0):
+        return "laminar"
+    return ""
 
 _NEEDED = ("u_rms", "v_rms", "w_rms", "eta", "eps_cv", "Lz_turb", "Re")
 

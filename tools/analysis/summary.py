@@ -36,7 +36,8 @@ import numpy as np
 import yaml
 
 from shearmix.tools.analysis.averages import time_average, uniform_resample
-from shearmix.tools.analysis.regimes import RegimeThresholds, classify
+from shearmix.tools.analysis.regimes import FLOW_REASONS, RegimeThresholds, classify, flow_state
+from shearmix.tools.analysis.segments import choose, split
 from shearmix.tools.analysis.steady import detect_steady_state
 
 __all__ = [
@@ -81,6 +82,10 @@ class SummaryOptions:
         Largest ``Pe_turb`` for which the low-Peclet model is deemed valid (1).
     thresholds : RegimeThresholds
         Regime thresholds.
+    segment : int, 'all' or None
+        Segment of the series to average (:mod:`shearmix.tools.analysis.segments`):
+        ``None`` the last, a number (negative from the end), or ``'all'`` to
+        average across every change (with a warning naming them).
     """
 
     start: float | None = None
@@ -90,6 +95,7 @@ class SummaryOptions:
     min_correlation_times: float = 50.0
     pe_turb_max: float = 1.0
     thresholds: RegimeThresholds = field(default_factory=RegimeThresholds)
+    segment: int | str | None = None
 
 
 def _series_path(path):
@@ -205,12 +211,34 @@ def summarize_run(path, options=None, **overrides):
         opts = replace(opts, **overrides)
     fname = _series_path(path)
     data, attrs, dropped = read_timeseries(fname)
-    t = data["t"]
     warnings = []
     if dropped:
         warnings.append(f"{dropped} records overwritten by a restart were ignored")
-    if t.size < 2 * opts.n_batches:
-        raise ValueError(f"{fname}: {t.size} records; at least {2 * opts.n_batches} are needed for a summary")
+    segs = split(data, attrs)
+    if opts.segment == "all":
+        seg = segs[-1]
+        if len(segs) > 1:
+            warnings.append("averaged across all {} segments, over the changes: {}".format(
+                len(segs), "; ".join(f"t = {g.t:.6g}: {g.describe_changes()}" for g in segs[1:])))
+        case = segs[-1].case
+    else:
+        seg = choose(segs, opts.segment, fname)
+        data = {k: v[seg.records] for k, v in data.items()}
+        case = seg.case
+        if len(segs) > 1:
+            warnings.append(f"segment {seg.index} of {len(segs)} averaged (from t = {seg.t:.6g}"
+                            + (f", after {seg.describe_changes()}" if seg.changes else "") + ")")
+        if opts.start is not None and opts.start < seg.t and seg.index > 0:
+            warnings.append(f"start {opts.start:g} lies before segment {seg.index} (t = {seg.t:.6g}, "
+                            f"{seg.describe_changes()}); averaging from t = {seg.t:.6g} only "
+                            "(use segment 'all' to cross the change)")
+            opts = replace(opts, start=None)
+    t = data["t"]
+    if t.size == 0:
+        raise ValueError(f"{fname}: segment {seg.index} holds no records")
+    short = t.size < 2 * opts.n_batches
+    if short:
+        return _short_row(fname, data, attrs, case, segs, seg, opts, warnings)
     steady_in = {}
     for q in opts.steady_quantities:
         if q not in data:
@@ -225,14 +253,8 @@ def summarize_run(path, options=None, **overrides):
         raise ValueError(f"{fname}: {exc}") from None
     if not steady.reliable:
         warnings.append("no reliable steady state: MSER truncation falls in the second half (run too short or drifting)")
-    pars = _parameters(attrs)
-    row = {
-        "run": os.path.basename(os.path.dirname(os.path.abspath(fname))),
-        "path": os.path.abspath(fname),
-        "model": attrs.get("model", ""),
-        "convention": attrs.get("convention", ""),
-        "version": attrs.get("version", ""),
-        **pars,
+    row = _head(fname, attrs, case, segs, seg, opts)
+    row.update({
         "t_first": float(t[0]),
         "t_last": float(t[-1]),
         "t_start": float("nan"),
@@ -240,8 +262,13 @@ def summarize_run(path, options=None, **overrides):
         "window": float("nan"),
         "steady_method": steady.method,
         "steady_reliable": steady.reliable,
-    }
+        "short": False,
+    })
     win = t >= steady.t_start
+    if np.count_nonzero(win) < 2 * opts.n_batches:
+        warnings.append(f"steady window from t = {steady.t_start:.6g} ({steady.method})")
+        return _short_row(fname, {k: v[win] for k, v in data.items()}, attrs, case, segs, seg,
+                          opts, warnings)
     row["t_start"] = float(t[win][0])
     row["window"] = row["t_end"] - row["t_start"]
     n_corr = []
@@ -279,7 +306,8 @@ def summarize_run(path, options=None, **overrides):
             )
     else:
         row["correlation_times"] = float("nan")
-    if row["kmax_etaK"] < opts.kmax_etaK_min:
+    row["flow"] = flow_state(t[win], data)
+    if row["kmax_etaK"] < opts.kmax_etaK_min and not row["flow"]:
         warnings.append(f"under-resolved: kmax*eta_K = {row['kmax_etaK']:.3g} < {opts.kmax_etaK_min:g}")
     # spectral tail over the same window, where the run wrote spectra (tools/analysis/spectral_tail.py)
     from shearmix.tools.analysis.spectral_tail import tail_ratio, tail_warning
@@ -289,11 +317,67 @@ def summarize_run(path, options=None, **overrides):
         warnings.append(tail)
     if row["model"] == "lowpe" and row["Pe_turb"] > opts.pe_turb_max:
         warnings.append(f"outside low-Peclet validity: Pe_turb = {row['Pe_turb']:.3g} > {opts.pe_turb_max:g}")
+    _label(row, opts, warnings)
+    return row
+
+
+def _head(fname, attrs, case, segs, seg, opts):
+    """The columns naming the run, its segment and that segment's parameters."""
+    pars = _parameters({"case": case})
+    return {
+        "run": os.path.basename(os.path.dirname(os.path.abspath(fname))),
+        "path": os.path.abspath(fname),
+        "model": case.get("model", attrs.get("model", "")),
+        "convention": attrs.get("convention", ""),
+        "version": attrs.get("version", ""),
+        "segment": "all" if opts.segment == "all" else seg.index,
+        "segments": len(segs),
+        "segment_t": float("nan") if opts.segment == "all" else seg.t,
+        **pars,
+    }
+
+
+def _label(row, opts, warnings):
+    """The regime label, unless the flow is laminar or growing (then that is the label)."""
     reg = classify(row, opts.thresholds)
-    row["regime"] = reg.label
     row.update(reg.numbers)
-    row["regime_reason"] = reg.reason
+    if row.get("flow"):
+        row["regime"] = row["flow"]
+        row["regime_reason"] = FLOW_REASONS[row["flow"]]
+    else:
+        row["regime"] = reg.label
+        row["regime_reason"] = reg.reason
     row["warnings"] = warnings
+
+
+def _short_row(fname, data, attrs, case, segs, seg, opts, warnings):
+    """Summary of a series too short for error bars: time means over all its
+    records, errors NaN, the shortness in ``short`` and the warnings."""
+    t = data["t"]
+    need = 2 * opts.n_batches
+    warnings.append(f"short: {t.size} records; at least {need} are needed for error bars and a "
+                    "steady-state window (means over all records, no error bars)")
+    row = _head(fname, attrs, case, segs, seg, opts)
+    row.update({"t_first": float(t[0]), "t_last": float(t[-1]), "t_start": float(t[0]),
+                "t_end": float(t[-1]), "window": float(t[-1] - t[0]),
+                "steady_method": "none (short)", "steady_reliable": False, "short": True})
+    for q in AVERAGED:
+        row[q] = row[f"{q}_err"] = row[f"{q}_tau"] = float("nan")
+        if q not in data:
+            continue
+        ok = np.isfinite(data[q])
+        if np.count_nonzero(ok) >= 2 and t[ok][-1] > t[ok][0]:
+            row[q] = float(np.trapezoid(data[q][ok], t[ok]) / (t[ok][-1] - t[ok][0]))
+        elif np.count_nonzero(ok) == 1:
+            row[q] = float(data[q][ok][0])
+    if "eps" in data:
+        row["eps_cv"], row["eps_flatness"] = _dissipation_intermittency(t, data["eps"])
+    else:
+        row["eps_cv"] = row["eps_flatness"] = float("nan")
+    row["correlation_times"] = float("nan")
+    row["tail_ratio"] = float("nan")
+    row["flow"] = flow_state(t, data)
+    _label(row, opts, warnings)
     return row
 
 

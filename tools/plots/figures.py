@@ -103,6 +103,18 @@ def _log_ticks(ax, axis="x"):
     a.set_minor_formatter(ticker.NullFormatter())
 
 
+def _mark_segments(ax, data, attrs):
+    """A dashed vertical line at each segment start after the first, labelled with the
+    change (:mod:`shearmix.tools.analysis.segments`)."""
+    from shearmix.tools.analysis.segments import split
+    for seg in split(data, attrs)[1:]:
+        for a in ax:
+            a.axvline(seg.t, color="k", ls="--", lw=0.8)
+        ax[0].annotate(f"segment {seg.index}: {seg.describe_changes()}", xy=(seg.t, 1.0),
+                       xycoords=("data", "axes fraction"), xytext=(3, -10),
+                       textcoords="offset points", fontsize=7, va="top")
+
+
 def plot_series(run_dir, path, start=None):
     """Time series of a run: energies, budget terms and mixing efficiency."""
     from shearmix.tools.analysis.summary import read_timeseries
@@ -131,6 +143,7 @@ def plot_series(run_dir, path, start=None):
             a.axvspan(t0, t[-1], color="0.9", zorder=0)
         if a.get_legend_handles_labels()[0]:
             a.legend(loc="best", fontsize=8)
+    _mark_segments(ax, data, attrs)
     title = run_title(_case_dict(attrs), os.path.basename(os.path.abspath(run_dir)))
     if t0 is not None:
         note = f"shaded: steady window from t = {t0:.4g}" + (" (given)" if start is not None else "")

@@ -116,7 +116,7 @@ def cmd_summarize(args):
                                  thresholds=th, plots=not args.no_plots, out_dir=args.output)
     except (ValueError, OSError) as exc:
         return _fail(str(exc))
-    return 0 if result["rows"] else 1
+    return 0 if len(result["rows"]) > len(result["skipped"]) else 1
 
 
 def cmd_batch(args):

@@ -2,7 +2,8 @@
 
 Per member the row is :func:`shearmix.tools.analysis.summary.summarize_run` (time averages with
 uncertainties, regime label and warnings; see docs/analysis.md) with the
-member's name and state in front. The fits are :func:`shearmix.tools.analysis.fits.fit_power_law`
+member's name and state in front; it averages the member's last segment
+(a restart that changed the case begins a new one) and says so. The fits are :func:`shearmix.tools.analysis.fits.fit_power_law`
 of ``Lz_turb``, ``w_rms``, ``D_flux`` and ``D_estimate`` against ``BPe``
 (weighted by the rows' ``_err`` columns when every selected error is usable,
 unweighted otherwise), compared with :data:`shearmix.tools.analysis.fits.EXPECTED_EXPONENTS`.
@@ -10,7 +11,9 @@ The selection can be restricted to a ``BPe`` range and to one regime label;
 the scalings are only expected inside one regime.
 
 Files written to the output folder (the sweep folder by default):
-``summary.csv`` (all members), ``fits.csv`` (one row per fitted quantity) and,
+``summary.csv`` (every member: one not summarised has its reason in
+``warnings`` and empty numbers; a short one has its means, no error bars,
+``short`` true, and is left out of the fits), ``fits.csv`` (one row per fitted quantity) and,
 unless disabled, ``regime-map.png`` and ``scaling.png``.
 """
 from __future__ import annotations
@@ -131,31 +134,41 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         run_dir = sweep.run_dir(m)
         if not os.path.exists(os.path.join(run_dir, SERIES_FILE)):
             skipped[m.name] = "no results"
-            continue
-        try:
-            row = summarize_run(run_dir, opts)
-        except (ValueError, OSError) as exc:
-            skipped[m.name] = str(exc)
+        else:
+            try:
+                row = summarize_run(run_dir, opts)
+            except (ValueError, OSError) as exc:
+                skipped[m.name] = str(exc)
+        if m.name in skipped:
+            # every member has its line in the table, with the reason it holds no numbers
+            rows.append({"member": m.name, "state": states.get(m.name, ""), "regime": "",
+                         "warnings": [f"not summarised: {skipped[m.name]}"]})
             continue
         rows.append({"member": m.name, "state": states.get(m.name, ""), **row})
     files = []
-    log(f"sweep {sweep.name}: {len(rows)} of {len(sweep.members)} members summarised")
+    done = len(sweep.members) - len(skipped)
+    log(f"sweep {sweep.name}: {done} of {len(sweep.members)} members summarised")
     for name, why in skipped.items():
-        log(f"  {name}: skipped ({why})")
-    if not rows:
-        return {"rows": rows, "fits": [], "skipped": skipped, "files": files}
+        log(f"  {name}: not summarised ({why})")
     table = os.path.join(out_dir, "summary.csv")
     write_csv(rows, table)
     files.append(table)
+    if not done:
+        log(f"  wrote {os.path.relpath(table)}")
+        return {"rows": rows, "fits": [], "skipped": skipped, "files": files}
+    rows_done = [r for r in rows if r["member"] not in skipped]
     head = f"  {'member':14s} {'state':13s} {'BPe':>7s} {'eta':>14s} {'w_rms':>15s} " \
            f"{'Lz_turb':>15s} {'D_flux':>15s}  regime"
     log(head)
-    for r in rows:
+    for r in rows_done:
         log(f"  {r['member']:14s} {r['state']:13s} {r['BPe']:7.3g} {_fmt(r['eta'], r['eta_err']):>14s} "
             f"{_fmt(r['w_rms'], r['w_rms_err']):>15s} {_fmt(r['Lz_turb'], r['Lz_turb_err']):>15s} "
             f"{_fmt(r['D_flux'], r['D_flux_err']):>15s}  {r['regime']}"
+            + (f"  [segment {r['segment']} of {r['segments']}]" if r["segments"] > 1 else "")
+            + ("  [short]" if r["short"] else "")
             + (f"  [{len(r['warnings'])} warning(s)]" if r["warnings"] else ""))
-    fits = fit_rows(rows, x_range=x_range, regime=regime)
+    # short members have no error bars and no steady window: they stay in the table, not the fits
+    fits = fit_rows([r for r in rows_done if not r["short"]], x_range=x_range, regime=regime)
     selection = "all runs" if x_range is None and regime is None else \
         ", ".join(s for s in (f"BPe in [{x_range[0]:g}, {x_range[1]:g}]" if x_range else "",
                               f"regime {regime}" if regime else "") if s)
@@ -177,8 +190,8 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         log(line)
     if plots:
         from shearmix.tools.plots import figures as P
-        files.append(P.plot_regime_map(rows, os.path.join(out_dir, "regime-map.png")))
-        files.append(P.plot_scaling(rows, fits, os.path.join(out_dir, "scaling.png")))
+        files.append(P.plot_regime_map(rows_done, os.path.join(out_dir, "regime-map.png")))
+        files.append(P.plot_scaling(rows_done, fits, os.path.join(out_dir, "scaling.png")))
     for p in files:
         log(f"  wrote {os.path.relpath(p)}")
     return {"rows": rows, "fits": fits, "skipped": skipped, "files": files}
