@@ -1,7 +1,7 @@
 """The engine started from an eigenmode grows at the computed rate.
 
 Reference: the DNS engine (``shearmix.solver.run.simulation``), an independent
-implementation of the nonlinear equations of DESIGN.md section 2.  At small
+implementation of the nonlinear equations of docs/equations.md#models.  At small
 amplitude the perturbation must grow at the linear growth rate; the issue asks
 for agreement within 2% over a decade of growth.  Serial, small grids.
 """
