@@ -1,8 +1,6 @@
 """FFTW threads per rank: the key, then OMP_NUM_THREADS, then the node's cores over its ranks."""
 import os
 
-import pytest
-
 from shearmix.solver.compute.parallel import SerialComm
 from shearmix.solver.run.simulation import default_threads
 
