@@ -267,7 +267,7 @@ def _where(node, key, source: str = "") -> str:
 class Case:
     """A validated case: the nested mapping with defaults filled, plus derived numbers.
 
-    Parameters follow docs/equations.md. ``F0`` defaults to ``kf^2/Re``
+    Parameters follow docs/equations.md (Models, Forcing). ``F0`` defaults to ``kf^2/Re``
     (laminar amplitude 1); the laminar amplitude is ``U_L = F0 Re / kf^2``.
     """
 

@@ -312,7 +312,7 @@ def machine() -> str:
 
 
 def markdown(report: dict) -> str:
-    """The README's performance tables from a ``--json`` report."""
+    """The performance tables of docs/performance.md from a ``--json`` report."""
     lines = [f"shearmix {report['version']} on {report['machine']}.", "",
              "| model | grid | ranks | s/step | floor s | ratio | cpu ratio | FFTs/step "
              "| 1st step s | B/pt net | products |",
@@ -385,7 +385,7 @@ def main(argv=None) -> int:
     ap.add_argument("--threads", action="store_true",
                     help="also compare 1 rank x 2 FFTW threads with 2 ranks x 1 thread (largest size)")
     ap.add_argument("--markdown", metavar="JSON",
-                    help="print the README tables of an earlier --json report, run nothing")
+                    help="print the docs/performance.md tables of an earlier --json report, run nothing")
     ap.add_argument("--passes", action="store_true",
                     help="also compare the block-wise and the whole-array product pass in "
                          "one process per rank count (128^3, or the largest size below it)")

@@ -44,7 +44,7 @@ def use_numba() -> bool:
 def _jit(fn):
     # error_model="numpy": a division gives inf/nan as NumPy does instead of a
     # per-element zero check, which kept LLVM from vectorising the loops
-    # (the 2x2 stage solve ran 1.8x slower with the check, measured at 128^3).
+    # (docs/performance.md has the measurement).
     # No fastmath: results stay identical to the NumPy definitions to round-off.
     if not HAVE_NUMBA:
         return None
@@ -551,7 +551,7 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
     With ``Ly = L y``: ``x += hb (z + Ly)``; unless ``last``,
     ``y <- (I - haii L)^{-1} (x + hex z + him Ly)``. The coefficients are the
     operator's arrays (evaluated once from the terms' monomials): computing them
-    per mode inside the loop costs three times as much (measured at 128^3).
+    per mode inside the loop costs more (docs/performance.md).
 
     Only the 2/3-rule band is visited: outside it the state and the tendency
     are zero (the simulation keeps them so), and zero stays zero under this

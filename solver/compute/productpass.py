@@ -31,10 +31,8 @@ DEFAULT_CACHE_BYTES = 32 * 1024 ** 2
 
 #: the most last-level cache counted per CPU sharing it. Server parts carry
 #: about 1.5-5 MiB of L3 per core (common practice, from vendors' data sheets,
-#: from memory). Measured on the 2-core Xeon guest (one process, steps
-#: alternating, 1 and 2 ranks, both models): block-wise steps took 0.72-1.00
-#: of the whole-array ones at 64^3 (fields 10-17 MB) and 1.13-1.24 at 32^3
-#: (1.3-2.1 MB), so the budget there, 2 x 4 MiB, lies between.
+#: from memory). The switch between the two passes then falls between 32^3
+#: and 64^3 on a 2-core machine, as measured (docs/performance.md).
 CACHE_CAP_PER_CPU = 4 * 1024 ** 2
 
 

@@ -14,7 +14,7 @@ any one spectrum add up to ``<f^2>/2`` exactly:
 
 Kinetic spectra are kept per velocity component (``u, v, w``; the kinetic
 energy is their sum, the horizontal spectrum in ``kz`` of ``Lz_turb``
-(docs/equations.md) the sum of the first two). The thermal spectrum is that of ``T``
+(docs/equations.md#reported-numbers) the sum of the first two). The thermal spectrum is that of ``T``
 (boussinesq) or of the buoyancy ``b = BPe lap^{-1} w`` (lowpe, since ``T``
 itself needs ``Pe``), again as ``<f^2>/2``.
 

@@ -1,4 +1,4 @@
-"""The reported numbers (docs/equations.md), computed in spectral space.
+"""The reported numbers of docs/equations.md#reported-numbers, computed in spectral space.
 
 Volume averages use Parseval's identity on the half spectrum (see
 :meth:`shearmix.solver.grid.Grid.volume_sum`). With these definitions, exactly

@@ -1,4 +1,4 @@
-"""Models as sets of terms (docs/equations.md).
+"""Models as sets of terms (docs/equations.md#models).
 
 ``boussinesq``: viscosity, thermal diffusion, buoyancy, background
 stratification (all implicit), advection of momentum and temperature and the

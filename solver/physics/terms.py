@@ -6,7 +6,7 @@ Linear terms are treated implicitly; each adds its coefficients to the
 per-wavenumber linear operator ``L`` (``d(field)/dt = L[field, source] * source``).
 Explicit terms (advection, forcing) add to the explicit tendency.
 
-Linear coefficients follow docs/equations.md in the Craya-Herring frame,
+Linear coefficients follow docs/equations.md#spectral-formulation in the Craya-Herring frame,
 with ``alpha = kh/|k|``. Each is a short sum of monomials ``c |k|^(2m) alpha^n``,
 given by the term as rows ``(c, m, n)``: the compiled stepper evaluates them per
 wavenumber and stores no coefficient array.

@@ -76,7 +76,7 @@ class EveryTime:
 
 
 class TimeSeriesOutput(Output):
-    """The reported numbers (docs/equations.md) appended to ``timeseries.h5``."""
+    """Diagnostics of docs/equations.md#reported-numbers appended to ``timeseries.h5``."""
 
     def __init__(self, every: int):
         self.cadence = EveryNSteps(every)

@@ -6,7 +6,7 @@ What may change between the checkpoint's case and the new one:
   amplitude), stop conditions, time-step settings, outputs and compute
   settings, the name: taken as given;
 * the model: boussinesq -> lowpe drops ``T``; lowpe -> boussinesq sets ``T``
-  from the quasi-static balance of DESIGN.md section 2,
+  from the quasi-static balance of docs/equations.md#models,
   ``T = Pe lap^{-1} w``, i.e. ``T_k = Pe alpha p_k / |k|^2`` with
   ``w_k = -alpha p_k`` (:mod:`shearmix.solver.physics.basis`) and ``T_0 = 0``;
 * the grid (``grid.Nx/Ny/Nz``): spectral truncation or zero padding, every

@@ -68,7 +68,7 @@ def default_threads(case: Case, comm) -> int:
     cores this process may use shared among the ranks on its node.
 
     Filling the node is the default because, on one node, FFTW threads did
-    about as well as ranks (README, Performance); ``mpiexec -n <cores>`` gives
+    about as well as ranks (docs/performance.md); ``mpiexec -n <cores>`` gives
     one thread per rank, a single process all cores.
     """
     t = case.get("compute.threads")

@@ -1,4 +1,4 @@
-"""Energy budget dK/dt = I - eps + J (DESIGN.md section 3) in nonlinear runs.
+"""Energy budget dK/dt = I - eps + J (docs/equations.md#budget-identities) in nonlinear runs.
 
 The residual recorded in the time series is the difference quotient of K
 between consecutive records minus the trapezoidal mean of I - eps + J. The

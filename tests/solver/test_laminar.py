@@ -2,7 +2,7 @@
 
 With F = F0 sin(kf y) e_x and u = U(t) sin(kf y) e_x the advection vanishes
 and dU/dt = F0 - kf^2 U/Re, so from rest U(t) = U_L (1 - exp(-kf^2 t/Re))
-with U_L = F0 Re/kf^2 (DESIGN.md section 2; an exact solution).
+with U_L = F0 Re/kf^2 (docs/equations.md#forcing; an exact solution).
 """
 import math
 

@@ -10,7 +10,7 @@ u.grad T = 0, so the engine must reproduce the linear 2x2 dynamics exactly:
   N^2 plays the role of B). The reference solution is the matrix exponential
   of scipy.linalg.expm (a general-purpose library).
 * low-Peclet model: p decays at exactly BPe kh^2/|k|^4 + |k|^2/Re
-  (DESIGN.md section 2).
+  (docs/equations.md#spectral-formulation).
 """
 import math
 

@@ -1,8 +1,8 @@
 """The full model tends to the low-Peclet model as Pe -> 0 with B*Pe fixed.
 
-DESIGN.md section 2: with T = Pe lap^{-1} w + O(Pe^2) the momentum equations
+docs/equations.md#models: with T = Pe lap^{-1} w + O(Pe^2) the momentum equations
 coincide, so the velocity difference after a fixed time must shrink like Pe
-(the low-Peclet reduction of DESIGN.md section 2 is the limit being
+(the low-Peclet reduction of docs/equations.md#models is the limit being
 checked; the first-order rate is common practice for such expansions).
 """
 import numpy as np

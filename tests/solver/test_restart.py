@@ -110,7 +110,7 @@ def test_lowpe_to_boussinesq_sets_T_from_the_quasi_static_balance(make_case, tmp
     full = _restarted(full_case, path)
     assert np.array_equal(full.state[:2], low.state)
     _, _, w, T = full.physical()
-    # DESIGN.md section 2: T = Pe lap^-1 w, i.e. lap T = Pe w; Laplacian by numpy.fft
+    # docs/equations.md#models: T = Pe lap^-1 w, i.e. lap T = Pe w; Laplacian by numpy.fft
     k = [2 * np.pi * np.fft.fftfreq(n, L / n) for n, L in zip(T.shape, full_case.lengths)]
     k2 = k[0][:, None, None] ** 2 + k[1][None, :, None] ** 2 + k[2][None, None, :] ** 2
     lap_T = np.real(np.fft.ifftn(-k2 * np.fft.fftn(T)))

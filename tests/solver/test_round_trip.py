@@ -211,8 +211,8 @@ def test_cpu_lists_as_linux_writes_them():
 
 
 def test_reported_cache_capped_per_cpu_sharing_it(tmp_path):
-    """A guest that sees 2 CPUs of a socket with a 480 MiB L3 (the Xeon guest of
-    README "Performance") counts 2 x 4 MiB, as does one with a 32 MiB L3; a
+    """A guest that sees 2 CPUs of a socket with a 480 MiB L3 (as one machine of
+    docs/performance.md does) counts 2 x 4 MiB, as does one with a 32 MiB L3; a
     16 MiB L3 shared by 16 CPUs stays whole; a cache that does not list its
     CPUs is taken as reported."""
     cap = productpass.CACHE_CAP_PER_CPU

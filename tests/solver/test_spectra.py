@@ -117,15 +117,12 @@ def test_lz_turb_single_vertical_wavenumber(make_case):
 def test_spectra_do_not_depend_on_rank_count(tmp_path):
     """The same seeded state (rank-independent noise, solver/physics/initial.py) on 1 and 2 ranks."""
     import os
-    import shutil
     import subprocess
     import sys
     here = os.path.dirname(os.path.abspath(__file__))
-    mpiexec = os.path.join(os.path.dirname(sys.executable), "mpiexec")
-    mpiexec = mpiexec if os.path.exists(mpiexec) else shutil.which("mpiexec")
-    if mpiexec is None:
-        pytest.skip("no mpiexec on this machine")
     sys.path.insert(0, here)
+    from test_mpi import _mpiexec
+    mpiexec = _mpiexec()
     from spectra_probe import spectra
     serial = spectra()
     out = tmp_path / "two.npz"

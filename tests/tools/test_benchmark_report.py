@@ -1,4 +1,4 @@
-"""The benchmark's README tables are computed from its JSON records."""
+"""The benchmark's tables (docs/performance.md) are computed from its JSON records."""
 import os
 import sys
 

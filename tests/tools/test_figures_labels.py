@@ -12,10 +12,8 @@ import itertools
 
 import pytest
 
-pytest.importorskip("matplotlib")
-
-from shearmix.solver.run.simulation import Simulation  # noqa: E402
-from shearmix.tools.plots import figures as plots  # noqa: E402
+from shearmix.solver.run.simulation import Simulation
+from shearmix.tools.plots import figures as plots
 
 
 @pytest.fixture(scope="module")

@@ -78,7 +78,7 @@ def test_bad_range_rejected_by_parser(case):
 
 
 def test_mode_writes_file_for_fastest_box_mode(case, tmp_path, capsys):
-    h5py = pytest.importorskip("h5py")
+    import h5py
     out = tmp_path / "m.h5"
     assert run(["mode", case, "-o", str(out)]) == 0
     with h5py.File(out, "r") as fh:

@@ -2,9 +2,8 @@
 import math
 
 import numpy as np
+import h5py
 import pytest
-
-h5py = pytest.importorskip("h5py")
 
 from shearmix.tools.stability import FlowParams
 from shearmix.tools.stability.boxfit import Box

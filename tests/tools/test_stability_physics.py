@@ -58,7 +58,7 @@ def test_kolmogorov_reynolds_scaling_with_amplitude_and_kf():
 
 def test_kolmogorov_stable_for_kx_at_least_kf():
     """2D Kolmogorov flow is linearly stable for kx >= kf at any Re
-    (classical result, Meshalkin & Sinai 1961; DESIGN.md; quoted from memory).
+    (classical result, Meshalkin & Sinai 1961; docs/equations.md#forcing; quoted from memory).
     """
     for Re in (10.0, 100.0, 1000.0):
         p = FlowParams("lowpe", Re=Re, BPe=0.0)
@@ -114,7 +114,7 @@ def test_internal_gravity_waves_inviscid():
 def test_damped_gravity_waves_exact(kx, kz, ky0):
     """No shear: exact roots of the damped 2x2 system
     sigma^2 + (1/Re + 1/Pe)|k|^2 sigma + |k|^4/(Re Pe) + B kh^2/|k|^2 = 0
-    (derived from the equations, DESIGN.md section 2) and viscous decay of the
+    (derived from the equations, docs/equations.md#models) and viscous decay of the
     vortical part; includes kx = 0 and kz = 0."""
     p = FlowParams("boussinesq", Re=20.0, B=2.0, Pe=7.0, U_L=0.0)
     M = 5
@@ -125,7 +125,7 @@ def test_damped_gravity_waves_exact(kx, kz, ky0):
 @pytest.mark.parametrize("kx,kz,ky0", [(0.7, 1.3, 0.2), (0.0, 1.0, 0.0), (0.5, 0.0, 0.3)])
 def test_low_peclet_damping_exact(kx, kz, ky0):
     """No shear, low-Pe model: poloidal part decays at BPe kh^2/|k|^4 + |k|^2/Re
-    (DESIGN.md section 2, from T = Pe lap^-1 w), vortical part at |k|^2/Re."""
+    (docs/equations.md#models, from T = Pe lap^-1 w), vortical part at |k|^2/Re."""
     p = FlowParams("lowpe", Re=30.0, BPe=5.0, U_L=0.0)
     M = 5
     ev = spectrum(build(p, kx, kz, ky0, M))
@@ -135,7 +135,7 @@ def test_low_peclet_damping_exact(kx, kz, ky0):
 
 # ---------------------------------------------------------------- limits and consistency
 def test_full_model_tends_to_low_peclet():
-    """DESIGN.md section 2 (the low-Peclet reduction): the Boussinesq equations at Pe -> 0 with B Pe fixed
+    """docs/equations.md#models (the low-Peclet reduction): the Boussinesq equations at Pe -> 0 with B Pe fixed
     reduce to the low-Péclet model; the eigenvalue difference falls like Pe."""
     BPe, Re = 2.0, 40.0
     lo = FlowParams("lowpe", Re=Re, BPe=BPe)
@@ -164,7 +164,7 @@ def test_energy_bound():
 
 def test_stratification_does_not_touch_2d_modes():
     """For kz = 0 the vortical (in-plane) modes do not involve w, so buoyancy
-    cannot change them (exact property of the equations, DESIGN.md section 2):
+    cannot change them (exact property of the equations, docs/equations.md#models):
     the 2D leading eigenvalue equals the unstratified one."""
     s0 = solve(FlowParams("lowpe", Re=30.0, BPe=0.0), 0.5, 0.0).sigma
     s1 = solve(FlowParams("lowpe", Re=30.0, BPe=50.0), 0.5, 0.0).sigma

@@ -24,9 +24,7 @@ def test_spectral_tail_warning_in_run_summary(make_case, tmp_path, Re, forcing, 
                              "spectra_every": 0.1})
     sim = Simulation(case)
     code = sim.run(output=str(tmp_path), log=lambda m: None)
-    assert code in (0, 3)
-    if code == 3:
-        pytest.skip("the coarse run blew up before it could be summarised")
+    assert code == 0, "the run under test must finish for its summary to be checked"
     row = summarize_run(str(tmp_path), start=0.3)
     tail = [w for w in row["warnings"] if "spectrum at k_max" in w]
     assert bool(tail) == expect_warning, (row["tail_ratio"], row["warnings"])

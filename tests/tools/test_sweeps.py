@@ -142,7 +142,6 @@ def _states(table):
 
 
 def test_tiny_sweep_runs_stops_resumes_and_summarizes(tmp_path):
-    pytest.importorskip("shearmix.solver.run.restart", reason="needs the engine's checkpoints and --restart")
     s = {"sweep": "tiny", "base_case": TINY_BASE, "vary": {"parameters.BPe": [0.5, 5]},
          "launch": {"ranks": 1, "parallel": 2}}
     path = _write(tmp_path, s)
@@ -268,7 +267,6 @@ def test_batch_rejects_bad_walltime(tmp_path):
 
 
 def test_chained_member_starts_from_its_neighbour(tmp_path):
-    pytest.importorskip("shearmix.solver.run.restart", reason="needs the engine's checkpoints and --restart")
     s = {"sweep": "chain", "base_case": {**TINY_BASE, "time": {"t_end": 0.4, "dt": 0.02,
                                                                "adaptive": False}},
          "vary": {"parameters.BPe": [5, 1]}, "chain": "parameters.BPe"}

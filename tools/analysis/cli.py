@@ -107,7 +107,7 @@ def cmd_fit(args):
     print(f"  reduced chi-square {fit.chi2_red:.3g} ({fit.dof} degrees of freedom)")
     if comp is not None:
         verdict = "consistent" if comp["consistent"] else "not consistent"
-        print(f"  expected p = {comp['expected']:.4g} (DESIGN.md, fact of the trade): {verdict} "
+        print(f"  expected p = {comp['expected']:.4g} (docs/equations.md#regimes, fact of the trade): {verdict} "
               f"at {pct:g}% (difference {comp['difference']:+.3g}, {comp['z']:+.2f} standard errors)")
     return 0
 

@@ -13,7 +13,7 @@ interval has exact coverage (standard linear-regression theory, e.g. Draper &
 Smith, *Applied Regression Analysis*). With ``absolute_sigma=True`` the
 covariance is not scaled and intervals use the normal distribution.
 
-The exponents expected from DESIGN.md section 3 ("facts of the trade", no
+The exponents expected from docs/equations.md#regimes ("facts of the trade", no
 published source given there) are in :data:`EXPECTED_EXPONENTS`;
 :func:`compare_exponent` reports how a fitted exponent sits against them.
 """
@@ -34,7 +34,7 @@ __all__ = [
     "fit_table",
 ]
 
-#: Scaling exponents against BPe listed in DESIGN.md section 3 for the
+#: Scaling exponents against BPe listed in docs/equations.md#regimes for the
 #: stratified-turbulence regime (facts of the trade, no published source).
 EXPECTED_EXPONENTS = {
     ("BPe", "Lz_turb"): -1.0 / 3.0,

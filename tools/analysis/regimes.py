@@ -1,6 +1,6 @@
 """Regime classification of a run from its measured, time-averaged quantities.
 
-The four regimes of DESIGN.md section 3, seen as ``BPe`` grows at fixed
+The four regimes of docs/equations.md#regimes, seen as ``BPe`` grows at fixed
 ``Re``, are told apart with four numbers computed from a run summary:
 
 ``isotropy``
@@ -46,7 +46,7 @@ Both numbers are a choice of this tool, not a published criterion.
 
 Default thresholds (:class:`RegimeThresholds`): ``viscous_ratio_min = 1``,
 ``isotropy_min = 0.6``, ``eps_cv_max = 0.5``, ``eta_min = 0.2``. These are a
-choice made for this tool, guided by the regime descriptions of DESIGN.md
+choice made for this tool, guided by the regime descriptions of docs/equations.md#regimes
 (mixing efficiency about 0.4 in stratified turbulence, falling in the
 intermittent regime); they are **not** a published criterion. Override them
 per study (``RegimeThresholds.from_yaml``).

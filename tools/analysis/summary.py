@@ -20,7 +20,7 @@ Steps (:func:`summarize_run`):
    outside the low-Peclet validity (``Pe_turb`` above ``pe_turb_max``,
    default 1, lowpe model only).
 
-``Lz_turb`` (DESIGN.md section 3) of a spectrum is :func:`lz_turb`; of a
+``Lz_turb`` (docs/equations.md#reported-numbers) of a spectrum is :func:`lz_turb`; of a
 physical-space velocity field, :func:`lz_turb_from_field`.
 """
 from __future__ import annotations
@@ -434,7 +434,7 @@ def lz_turb(E_h, kz):
     """Vertical scale of a horizontal kinetic energy spectrum in ``kz``.
 
     ``Lz_turb = 2 pi sum_{kz>0} E_h(kz) / sum_{kz>0} kz E_h(kz)``
-    (DESIGN.md section 3); entries with ``kz <= 0`` are ignored.
+    (docs/equations.md#reported-numbers); entries with ``kz <= 0`` are ignored.
 
     Parameters
     ----------

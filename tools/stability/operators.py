@@ -1,6 +1,6 @@
 r"""Fourier-Galerkin matrices of the flow linearised about ``U_L sin(kf y) e_x``.
 
-Normal modes (the equations of docs/equations.md, linearised about ``T = 0``)::
+Normal modes (docs/equations.md#models equations, linearised about ``T = 0``)::
 
     u'(x, t) = exp(i kx x + i kz z + sigma t) sum_n u_n exp(i q_n y),
     q_n = ky0 + n kf,   n = -M .. M,

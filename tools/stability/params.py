@@ -1,7 +1,7 @@
 """Parameters of the laminar flow and of the model whose stability is computed.
 
 The base state is the laminar flow ``U(y) = U_L sin(kf y) e_x``, ``T = 0``
-(docs/equations.md), with ``U_L = F0 Re / kf^2``.  Two models:
+(docs/equations.md#models), with ``U_L = F0 Re / kf^2``.  Two models:
 
 * ``boussinesq``: ``Re``, ``B``, ``Pe`` (``BPe = B*Pe`` derived);
 * ``lowpe``: ``Re``, ``BPe``.

@@ -30,7 +30,7 @@ from shearmix.tools.sweeps.status import sweep_status
 
 __all__ = ["FIT_QUANTITIES", "summarize_sweep", "fit_rows", "write_fits"]
 
-#: Quantities fitted against BPe (DESIGN.md section 3).
+#: Quantities fitted against BPe (docs/equations.md#regimes).
 FIT_QUANTITIES = ("Lz_turb", "w_rms", "D_flux", "D_estimate")
 
 
