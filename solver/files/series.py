@@ -110,11 +110,12 @@ class TimeSeriesWriter:
             self.fh = None
 
 
-def _flat(tree, prefix=""):
+def flat_keys(tree, prefix=""):
+    """A nested case mapping as ``{dotted.key: value}``."""
     out = {}
     for key, value in (tree or {}).items():
         if isinstance(value, dict):
-            out.update(_flat(value, f"{prefix}{key}."))
+            out.update(flat_keys(value, f"{prefix}{key}."))
         else:
             out[f"{prefix}{key}"] = value
     return out
@@ -123,7 +124,7 @@ def _flat(tree, prefix=""):
 def segment_changes(old_yaml: str, new_yaml: str) -> dict:
     """``{key: [old, new]}`` for the :data:`SEGMENT_KEYS` that differ between two cases."""
     import yaml
-    old, new = (_flat(yaml.safe_load(text) or {}) for text in (old_yaml, new_yaml))
+    old, new = (flat_keys(yaml.safe_load(text) or {}) for text in (old_yaml, new_yaml))
     diff = {}
     for key in sorted(set(old) | set(new)):
         if any(key == k or (k.endswith(".") and key.startswith(k)) for k in SEGMENT_KEYS):

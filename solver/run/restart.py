@@ -41,7 +41,7 @@ from shearmix.solver.files.checkpoint import (
     set_aside,
 )
 from shearmix.solver.files.fileheader import history_of, now
-from shearmix.solver.files.series import drop_segments_from
+from shearmix.solver.files.series import drop_segments_from, flat_keys
 from shearmix.solver.files.slabfile import agree
 from shearmix.solver.physics.terms import quasi_static
 from shearmix.solver.version import __version__
@@ -49,16 +49,6 @@ from shearmix.solver.version import __version__
 
 class RestartError(ValueError):
     """A restart that cannot be done; the message is one line naming the file or key."""
-
-
-def _flat(tree: dict, prefix: str = "") -> dict:
-    out = {}
-    for key, value in tree.items():
-        if isinstance(value, dict):
-            out.update(_flat(value, f"{prefix}{key}."))
-        else:
-            out[f"{prefix}{key}"] = value
-    return out
 
 
 def resolve(spec: str, run_dir: str) -> tuple:
@@ -99,8 +89,8 @@ def changes(header: dict, case: Case, path: str) -> dict:
         old_raw = yaml.safe_load(header["case"]) or {}
     except yaml.YAMLError:
         raise RestartError(f"{path}: damaged checkpoint: its case text is not YAML") from None
-    old = _flat(old_raw)
-    new = _flat(case.raw)
+    old = flat_keys(old_raw)
+    new = flat_keys(case.raw)
     for axis, L_new in zip("xyz", case.lengths):
         L_old = header["lengths"]["xyz".index(axis)]
         if not math.isclose(L_old, L_new, rel_tol=1e-12, abs_tol=0.0):
