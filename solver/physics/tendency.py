@@ -126,11 +126,17 @@ class PseudoSpectralTendency:
         """New arrays ``(u, v, w, T or None)``: state ``y`` on the grid."""
         fft, P = self.fft, self.P
         kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
-        fields = [fft.inverse(P[comp], fft.empty_physical()) for comp in range(3)]
+        # the inverse FFT destroys its input: transform a copy, so that the work
+        # arrays keep zeros outside the 2/3 band (the block pass relies on them)
+        scratch = fft.empty_spectral()
+        fields = []
+        for comp in range(3):
+            np.copyto(scratch, P[comp])
+            fields.append(fft.inverse(scratch, fft.empty_physical()))
         T = None
         if self.has_T:
-            np.copyto(P[0], y[2])
-            T = fft.inverse(P[0], fft.empty_physical())
+            np.copyto(scratch, y[2])
+            T = fft.inverse(scratch, fft.empty_physical())
         return (*fields, T)
 
     # ------------------------------------------------------------ the physics

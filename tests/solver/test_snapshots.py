@@ -176,3 +176,26 @@ def test_failing_snapshot_write_stops_the_run_with_code_5(make_case, tmp_path, m
     assert any("snap_000000000.xmf: could not be written (Disk quota exceeded" in ln
                for ln in lines), lines
     assert list_checkpoints(str(tmp_path / "checkpoints")) == []  # nothing written after it
+
+
+@pytest.mark.parametrize("model", ["lowpe", "boussinesq"])
+@pytest.mark.parametrize("product_pass", ["whole", "blocks"])
+def test_writing_snapshots_leaves_the_run_unchanged(make_case, tmp_path, model, product_pass):
+    """Outputs observe the state; they must not change it (common practice, no source).
+
+    A snapshot transforms the state to the grid; the inverse FFT destroys its
+    input, so a snapshot made in the tendency's own work arrays left garbage
+    outside the 2/3 band that the next evaluation then transformed back in.
+    """
+    params = {"Re": 50.0, "BPe": 0.1} if model == "lowpe" else {"Re": 50.0, "B": 1.0, "Pe": 10.0}
+    finals = []
+    for every in (None, 0.05):
+        case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 8},
+                         time={"t_end": None, "max_steps": 6, "adaptive": False, "dt": 0.02},
+                         initial={"kind": "laminar_noise", "amplitude": 0.1},
+                         output={"snapshot_every": every},
+                         compute={"product_pass": product_pass})
+        sim = Simulation(case)
+        assert sim.run(output=str(tmp_path / f"run-{every}"), log=lambda m: None) == 0
+        finals.append(sim.state.copy())
+    assert np.array_equal(finals[0], finals[1])
