@@ -180,7 +180,7 @@ def test_failing_snapshot_write_stops_the_run_with_code_5(make_case, tmp_path, m
 
 @pytest.mark.parametrize("model", ["lowpe", "boussinesq"])
 @pytest.mark.parametrize("product_pass", ["whole", "blocks"])
-def test_writing_snapshots_leaves_the_run_unchanged(make_case, tmp_path, model, product_pass):
+def test_writing_outputs_leaves_the_run_unchanged(make_case, tmp_path, model, product_pass):
     """Outputs observe the state; they must not change it (common practice, no source).
 
     A snapshot transforms the state to the grid; the inverse FFT destroys its
@@ -190,10 +190,12 @@ def test_writing_snapshots_leaves_the_run_unchanged(make_case, tmp_path, model, 
     params = {"Re": 50.0, "BPe": 0.1} if model == "lowpe" else {"Re": 50.0, "B": 1.0, "Pe": 10.0}
     finals = []
     for every in (None, 0.05):
+        # with every output on at once: snapshots, spectra and checkpoints
         case = make_case(model=model, parameters=params, grid={"Nx": 16, "Ny": 8, "Nz": 8},
                          time={"t_end": None, "max_steps": 6, "adaptive": False, "dt": 0.02},
                          initial={"kind": "laminar_noise", "amplitude": 0.1},
-                         output={"snapshot_every": every},
+                         output={"snapshot_every": every, "spectra_every": every,
+                                 "checkpoint_every": every},
                          compute={"product_pass": product_pass})
         sim = Simulation(case)
         assert sim.run(output=str(tmp_path / f"run-{every}"), log=lambda m: None) == 0
