@@ -35,7 +35,9 @@ def _event(e: dict) -> str:
             f"{e.get('date', '')}")
     changes = e.get("changes") or {}
     if changes:
-        text += "; changed " + ", ".join(f"{k}: {a!r} -> {b!r}" for k, (a, b) in changes.items())
+        # a key set on one side only is "unset" on the other (never Python's None)
+        from shearmix.tools.cli import _shown
+        text += "; changed " + ", ".join(f"{k}: {_shown(a)} -> {_shown(b)}" for k, (a, b) in changes.items())
     return text
 
 

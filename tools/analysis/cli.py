@@ -5,6 +5,8 @@
                      [--min-correlation-times N] [--pe-turb-max X] [--segment N|all]
     shearmix fit TABLE.csv --x BPe --y Lz_turb [--range LO HI]
                  [--confidence C] [--no-errors]
+    shearmix regimes evidence SUMMARY.csv [--thresholds FILE] [--markdown]
+    shearmix regimes thresholds [--thresholds FILE] [--yaml | --markdown]
 
 Registered by :func:`add_arguments` on the program's subparsers; each
 subcommand's handler is stored as ``func`` and returns an exit code
@@ -18,10 +20,12 @@ import sys
 
 EXIT_BAD_INPUT = 2
 
-__all__ = ["add_arguments", "dispatch", "main", "cmd_summary", "cmd_fit"]
+__all__ = ["add_arguments", "dispatch", "main", "cmd_summary", "cmd_fit", "cmd_evidence",
+           "cmd_thresholds"]
 
 _SHOWN = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flux", "D_estimate",
-          "kmax_etaK", "Pe_turb")
+          "kmax_etaK", "Pe_turb", "Kmean", "Kfluct", "u_fluct_rms", "v_fluct_rms", "w_fluct_rms",
+          "isotropy_fluct", "K2d_laminar", "K2d_pert", "K3d", "Lz_jets", "Ri_jets")
 
 
 def _fail(message):
@@ -44,6 +48,14 @@ def _fmt(mean, err):
     return f"{mean:.5g} +- {err:.2g}"
 
 
+def regime_numbers_text(row):
+    """The numbers behind a row's regime label, in one line (what the rules compared)."""
+    lz = "Lz_jets" if row.get("regime_basis") == "fluctuations" else "Lz_turb"
+    return (f"isotropy {row['isotropy']:.3g}, viscous_ratio {row['viscous_ratio']:.3g} "
+            f"({lz} / l_nu, l_nu = {row['l_nu']:.3g}), eta {row['eta']:.3g}, "
+            f"quiet_fraction {row['quiet_fraction']:.3g}; basis: {row.get('regime_basis', '')}")
+
+
 def _print_row(row, out):
     print(f"run {row['run']}  ({row['model']}, Re={row['Re']:g}, BPe={row['BPe']:g})", file=out)
     if row["segments"] > 1:
@@ -53,10 +65,13 @@ def _print_row(row, out):
     print(f"  window [{row['t_start']:.6g}, {row['t_end']:.6g}] ({row['steady_method']}), "
           f"{row['correlation_times']:.3g} autocorrelation times", file=out)
     for q in _SHOWN:
-        if math.isfinite(row[q]):
+        if math.isfinite(row.get(q, float("nan"))):
             print(f"  {q:<11s} {_fmt(row[q], row[q + '_err'])}", file=out)
     print(f"  eps_cv      {row['eps_cv']:.3g}   (flatness {row['eps_flatness']:.3g})", file=out)
+    print(f"  flux        quiet_fraction {row['quiet_fraction']:.3g}   (flux_cv {row['flux_cv']:.3g})",
+          file=out)
     print(f"  regime      {row['regime']}: {row['regime_reason']}", file=out)
+    print(f"    from      {regime_numbers_text(row)}", file=out)
     for w in row["warnings"]:
         print(f"  warning: {w}", file=out)
 
@@ -112,6 +127,40 @@ def cmd_fit(args):
     return 0
 
 
+def _thresholds(args):
+    from shearmix.tools.analysis.regimes import RegimeThresholds
+    return RegimeThresholds.from_yaml(args.thresholds) if args.thresholds else RegimeThresholds()
+
+
+def cmd_evidence(args):
+    """Handler of ``regimes evidence``: where each threshold falls among a table's members."""
+    from shearmix.tools.analysis.evidence import format_evidence, read_table, threshold_evidence
+    try:
+        th = _thresholds(args)
+        rows = read_table(args.table)
+    except (ValueError, OSError) as exc:
+        return _fail(str(exc))
+    sys.stdout.write(format_evidence(threshold_evidence(rows, th), markdown=args.markdown))
+    return 0
+
+
+def cmd_thresholds(args):
+    """Handler of ``regimes thresholds``: the thresholds in use, as text, YAML or Markdown."""
+    from shearmix.tools.analysis.regimes import thresholds_markdown, thresholds_yaml
+    try:
+        th = _thresholds(args)
+    except (ValueError, OSError) as exc:
+        return _fail(str(exc))
+    if args.yaml:
+        sys.stdout.write(thresholds_yaml(th))
+    elif args.markdown:
+        print(thresholds_markdown(th))
+    else:
+        for name, number, op, label, doc in th.rules():
+            print(f"{name:20s} {getattr(th, name):<8g} {label} when {number} {op} {name}")
+    return 0
+
+
 def add_arguments(subparsers):
     """Register ``summary`` and ``fit`` on an argparse subparsers object."""
     p = subparsers.add_parser("summary", help="time averages, errors, regime and warnings of runs")
@@ -139,6 +188,21 @@ def add_arguments(subparsers):
     p.add_argument("--confidence", type=float, default=0.95, help="interval level (default 0.95)")
     p.add_argument("--no-errors", action="store_true", help="ignore the <y>_err column (unweighted fit)")
     p.set_defaults(func=cmd_fit)
+
+    p = subparsers.add_parser("regimes", help="regime thresholds and the evidence that places them")
+    acts = p.add_subparsers(dest="action", metavar="ACTION")
+    acts.required = True
+    a = acts.add_parser("evidence", help="each threshold among the ordered values of a summary table")
+    a.add_argument("table", metavar="SUMMARY.csv", help="summary.csv of 'sweep summarize' (or --csv of 'summary')")
+    a.add_argument("--thresholds", metavar="FILE", help="regime thresholds (YAML mapping)")
+    a.add_argument("--markdown", action="store_true", help="Markdown tables (for docs/campaign.md)")
+    a.set_defaults(func=cmd_evidence)
+    a = acts.add_parser("thresholds", help="the thresholds in use (defaults, or --thresholds FILE)")
+    a.add_argument("--thresholds", metavar="FILE", help="regime thresholds (YAML mapping)")
+    fmt = a.add_mutually_exclusive_group()
+    fmt.add_argument("--yaml", action="store_true", help="as the file --thresholds reads")
+    fmt.add_argument("--markdown", action="store_true", help="as the table of docs/equations.md#regimes")
+    a.set_defaults(func=cmd_thresholds)
 
 
 def dispatch(args):

@@ -36,7 +36,8 @@ import numpy as np
 import yaml
 
 from shearmix.tools.analysis.averages import time_average, uniform_resample
-from shearmix.tools.analysis.regimes import FLOW_REASONS, RegimeThresholds, classify, flow_state
+from shearmix.tools.analysis.regimes import (FLUCT_KEYS, RegimeThresholds, classify, flow_reason,
+                                             flow_numbers, flow_state, flux_intermittency)
 from shearmix.tools.analysis.segments import choose, split
 from shearmix.tools.analysis.steady import detect_steady_state
 
@@ -57,7 +58,10 @@ SERIES_FILE = "timeseries.h5"
 
 #: Quantities averaged in a summary (those absent or all-NaN are left empty).
 AVERAGED = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flux",
-            "D_estimate", "kmax_etaK", "Pe_turb")
+            "D_estimate", "kmax_etaK", "Pe_turb",
+            # the streamwise-mean / fluctuation split (docs/equations.md#reported-numbers)
+            "Kmean", "Kfluct", "u_fluct_rms", "v_fluct_rms", "w_fluct_rms", "isotropy_fluct",
+            "K2d_laminar", "K2d_pert", "K3d", "Lz_jets", "Ri_jets")
 
 
 @dataclass(frozen=True)
@@ -151,9 +155,15 @@ def read_timeseries(path):
 
 
 def _parameters(attrs):
-    """Re, B, Pe, BPe from the case (Pe from Pr*Re, BPe = B*Pe if not given)."""
+    """Re, B, Pe, BPe from the case (Pe from Pr*Re, BPe = B*Pe if not given) and the
+    forcing wavenumber kf (1 when the case does not give it, the schema default)."""
     case = attrs.get("case", {})
     p = case.get("parameters", {}) if isinstance(case.get("parameters"), dict) else {}
+    forcing = case.get("forcing", {}) if isinstance(case.get("forcing"), dict) else {}
+    try:
+        kf = float(forcing.get("kf", 1.0))
+    except (TypeError, ValueError):
+        kf = float("nan")
 
     def num(key):
         v = p.get(key)
@@ -167,7 +177,7 @@ def _parameters(attrs):
         Pe = Pr * Re
     if math.isnan(BPe) and not (math.isnan(B) or math.isnan(Pe)):
         BPe = B * Pe
-    return {"Re": Re, "B": B, "Pe": Pe, "BPe": BPe}
+    return {"Re": Re, "B": B, "Pe": Pe, "BPe": BPe, "kf": kf}
 
 
 def _dissipation_intermittency(t, eps):
@@ -296,6 +306,8 @@ def summarize_run(path, options=None, **overrides):
     else:
         cv = flat = float("nan")
     row["eps_cv"], row["eps_flatness"] = cv, flat
+    row["quiet_fraction"], row["flux_cv"] = (flux_intermittency(t[win], data["J"][win]) if "J" in data
+                                             else (float("nan"), float("nan")))
     if n_corr:
         shortest, qname = min(n_corr)
         row["correlation_times"] = shortest
@@ -306,7 +318,8 @@ def summarize_run(path, options=None, **overrides):
             )
     else:
         row["correlation_times"] = float("nan")
-    row["flow"] = flow_state(t[win], data)
+    row.update(flow_numbers(t[win], {k: v[win] for k, v in data.items()}))
+    row["flow"] = flow_state(t[win], {k: v[win] for k, v in data.items()}, opts.thresholds)
     if row["kmax_etaK"] < opts.kmax_etaK_min and not row["flow"]:
         warnings.append(f"under-resolved: kmax*eta_K = {row['kmax_etaK']:.3g} < {opts.kmax_etaK_min:g}")
     # spectral tail over the same window, where the run wrote spectra (tools/analysis/spectral_tail.py)
@@ -317,7 +330,7 @@ def summarize_run(path, options=None, **overrides):
         warnings.append(tail)
     if row["model"] == "lowpe" and row["Pe_turb"] > opts.pe_turb_max:
         warnings.append(f"outside low-Peclet validity: Pe_turb = {row['Pe_turb']:.3g} > {opts.pe_turb_max:g}")
-    _label(row, opts, warnings)
+    _label(row, opts, warnings, data)
     return row
 
 
@@ -337,16 +350,24 @@ def _head(fname, attrs, case, segs, seg, opts):
     }
 
 
-def _label(row, opts, warnings):
-    """The regime label, unless the flow is laminar or growing (then that is the label)."""
-    reg = classify(row, opts.thresholds)
-    row.update(reg.numbers)
+def _label(row, opts, warnings, data):
+    """The regime label, unless the flow is laminar or growing (then that is the label),
+    with the numbers behind it; a series without the fluctuation keys is classified
+    on the older numbers, with a warning."""
+    # the row holds NaN for every averaged key the series lacks: classify must see
+    # those as absent (fallback), not as undefined numbers
+    given = {k: v for k, v in row.items() if k not in FLUCT_KEYS or k in data}
+    reg = classify(given, opts.thresholds)
+    row.update({k: reg.numbers[k] for k in ("isotropy", "viscous_ratio", "l_nu")})
+    row["regime_basis"] = reg.basis
     if row.get("flow"):
         row["regime"] = row["flow"]
-        row["regime_reason"] = FLOW_REASONS[row["flow"]]
+        row["regime_reason"] = flow_reason(row["flow"], opts.thresholds)
     else:
         row["regime"] = reg.label
         row["regime_reason"] = reg.reason
+    if reg.fallback:
+        warnings.append(reg.fallback)
     row["warnings"] = warnings
 
 
@@ -374,10 +395,13 @@ def _short_row(fname, data, attrs, case, segs, seg, opts, warnings):
         row["eps_cv"], row["eps_flatness"] = _dissipation_intermittency(t, data["eps"])
     else:
         row["eps_cv"] = row["eps_flatness"] = float("nan")
+    row["quiet_fraction"], row["flux_cv"] = (flux_intermittency(t, data["J"]) if "J" in data
+                                             else (float("nan"), float("nan")))
     row["correlation_times"] = float("nan")
     row["tail_ratio"] = float("nan")
-    row["flow"] = flow_state(t, data)
-    _label(row, opts, warnings)
+    row.update(flow_numbers(t, data))
+    row["flow"] = flow_state(t, data, opts.thresholds)
+    _label(row, opts, warnings, data)
     return row
 
 

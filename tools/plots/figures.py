@@ -31,7 +31,8 @@ __all__ = ["plot_series", "plot_spectra", "plot_slices", "plot_regime_map", "plo
            "steady_window", "run_title"]
 
 #: marker colours of the regime labels (shearmix.tools.analysis.regimes.REGIMES)
-REGIME_COLOURS = {"isotropic": "tab:blue", "stratified_turbulence": "tab:green",
+REGIME_COLOURS = {"laminar": "tab:cyan", "growing": "tab:purple",
+                  "isotropic": "tab:blue", "stratified_turbulence": "tab:green",
                   "intermittent": "tab:orange", "viscous_layers": "tab:red",
                   "undetermined": "tab:gray"}
 
@@ -144,7 +145,10 @@ def plot_series(run_dir, path, start=None):
         if a.get_legend_handles_labels()[0]:
             a.legend(loc="best", fontsize=8)
     _mark_segments(ax, data, attrs)
-    title = run_title(_case_dict(attrs), os.path.basename(os.path.abspath(run_dir)))
+    # the last segment's case: a restart that changed the case makes the root one stale
+    from shearmix.tools.analysis.segments import split
+    title = run_title(split(data, attrs)[-1].case or _case_dict(attrs),
+                      os.path.basename(os.path.abspath(run_dir)))
     if t0 is not None:
         note = f"shaded: steady window from t = {t0:.4g}" + (" (given)" if start is not None else "")
     else:

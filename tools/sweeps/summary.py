@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import csv
 import math
+import numbers
 import os
 
 import numpy as np
@@ -38,7 +39,8 @@ def _select(rows, x, x_range, regime):
     out = []
     for r in rows:
         v = r.get(x, float("nan"))
-        if not (isinstance(v, float) and math.isfinite(v) and v > 0):
+        # any real number (a BPe of 1 may come as int 1), not a bool or a text cell
+        if isinstance(v, bool) or not isinstance(v, numbers.Real) or not (math.isfinite(v) and v > 0):
             continue
         if x_range is not None and not (x_range[0] <= v <= x_range[1]):
             continue
@@ -115,6 +117,12 @@ def _fmt(v, err=None):
     return f"{v:.4g}" if err is None or not math.isfinite(err) else f"{v:.4g}+-{err:.2g}"
 
 
+def _numbers(r):
+    """The numbers behind a row's label, in the order of the rules (docs/analysis.md#regimes)."""
+    return ", ".join(_fmt(r.get(k, float("nan"))) for k in ("isotropy", "viscous_ratio", "eta",
+                                                             "quiet_fraction"))
+
+
 def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=None, plots=True,
                     out_dir=None, log=print):
     """Summaries of every member with results, the fits, and the files (module docstring).
@@ -158,12 +166,12 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
         return {"rows": rows, "fits": [], "skipped": skipped, "files": files}
     rows_done = [r for r in rows if r["member"] not in skipped]
     head = f"  {'member':14s} {'state':13s} {'BPe':>7s} {'eta':>14s} {'w_rms':>15s} " \
-           f"{'Lz_turb':>15s} {'D_flux':>15s}  regime"
+           f"{'Lz_turb':>15s} {'D_flux':>15s}  regime  (isotropy, viscous_ratio, eta, quiet_fraction)"
     log(head)
     for r in rows_done:
         log(f"  {r['member']:14s} {r['state']:13s} {r['BPe']:7.3g} {_fmt(r['eta'], r['eta_err']):>14s} "
             f"{_fmt(r['w_rms'], r['w_rms_err']):>15s} {_fmt(r['Lz_turb'], r['Lz_turb_err']):>15s} "
-            f"{_fmt(r['D_flux'], r['D_flux_err']):>15s}  {r['regime']}"
+            f"{_fmt(r['D_flux'], r['D_flux_err']):>15s}  {r['regime']} ({_numbers(r)})"
             + (f"  [segment {r['segment']} of {r['segments']}]" if r["segments"] > 1 else "")
             + ("  [short]" if r["short"] else "")
             + (f"  [{len(r['warnings'])} warning(s)]" if r["warnings"] else ""))
