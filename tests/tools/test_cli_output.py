@@ -28,6 +28,16 @@ def test_restart_names_unset_value_as_unset(monkeypatch, capsys, tmp_path):
     assert "changed: parameters.Pe unset -> 0.1" in out and "None" not in out
 
 
+def test_info_history_names_unset_value_as_unset():
+    """``shearmix info``: a key set at a restart was unset before; its history says so."""
+    from shearmix.tools.fileinfo import _event
+    text = _event({"event": "restart", "t": 1.0, "step": 10, "from": "ck.h5", "ranks_before": 1,
+                   "ranks": 1, "version_before": "a", "version": "a",
+                   "changes": {"parameters.Pe": [None, 0.1], "time.dt": [0.02, None]}})
+    assert "changed parameters.Pe: unset -> 0.1, time.dt: 0.02 -> unset" in text
+    assert "None" not in text
+
+
 def test_piped_into_head_exits_quietly():
     # a reader that stops early closes the pipe: POSIX gives the writer EPIPE
     # (Python ignores SIGPIPE); closing the read end first makes it certain

@@ -117,6 +117,28 @@ def test_sweep_figures_png(tmp_path):
     assert_png(plots.plot_scaling(rows, fit_rows(rows), str(tmp_path / "scaling.png")))
 
 
+def test_regime_map_colours_every_label(tmp_path, monkeypatch):
+    """Laminar and growing runs get their own colour and legend entry (not black)."""
+    from matplotlib.colors import to_rgba
+
+    from shearmix.tools.analysis.regimes import REGIMES
+    from shearmix.tools.plots import figures
+    assert set(REGIMES) <= set(figures.REGIME_COLOURS)
+    assert len(set(figures.REGIME_COLOURS.values())) == len(figures.REGIME_COLOURS)
+    figs = []
+    monkeypatch.setattr(figures, "_save", lambda fig, path: figs.append(fig) or path)
+    rows = [{"BPe": b, "Re": 50, "eta": 0.1, "regime": lab}
+            for b, lab in ((0.1, "laminar"), (1.0, "growing"), (10.0, "isotropic"))]
+    figures.plot_regime_map(rows, str(tmp_path / "map.png"))
+    ax = figs[0].axes[0]
+    colours = {c.get_label(): tuple(c.get_facecolor()[0]) for c in ax.collections}
+    for lab in ("laminar", "growing", "isotropic"):
+        assert colours[lab] == to_rgba(figures.REGIME_COLOURS[lab]), lab
+    assert colours["laminar"] != to_rgba("k") and colours["growing"] != to_rgba("k")
+    import matplotlib.pyplot as plt
+    plt.close(figs[0])
+
+
 def test_plot_command(tiny_run, tmp_path):
     env = dict(os.environ, SHEARMIX_SERIAL="1")
     code = "import sys; from shearmix.tools.cli import main; sys.exit(main(sys.argv[1:]))"

@@ -108,7 +108,7 @@ def test_thresholds_file_docs_and_yaml(tmp_path):
     assert RegimeThresholds.from_yaml(shipped) == th
     assert open(shipped).read() == thresholds_yaml(th)
     # docs/equations.md#regimes shows the same table `shearmix regimes thresholds --markdown` prints
-    eq = open(os.path.join(ROOT, "docs", "equations.md"), encoding="utf-8").read()
+    eq = open(os.path.join(ROOT, "docs/equations.md"), encoding="utf-8").read()
     assert thresholds_markdown(th) in eq
     assert "provisional, to be placed by the campaign" in eq
     p = tmp_path / "th.yaml"

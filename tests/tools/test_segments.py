@@ -153,6 +153,9 @@ def test_series_figure_marks_the_change(two_segments, tmp_path, monkeypatch):
         xs = [line.get_xdata()[0] for line in ax.get_lines() if line.get_linestyle() == "--"]
         assert xs == [RESTART["t"]]
     assert "segment 1: parameters.Re 20 -> 25" in [t.get_text() for t in figs[0].axes[0].texts]
+    # the title names the last segment's case (Re = 25), not the first one's
+    title = figs[0].axes[0].get_title()
+    assert "Re=25" in title and "Re=20" not in title, title
 
 
 def test_fit_says_which_segments_and_warns_across(tmp_path, cli):

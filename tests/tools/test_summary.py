@@ -233,7 +233,19 @@ def test_command_line(tmp_path, run_dir, capsys):
     assert main(["summary", str(run_dir), "--csv", str(out_csv), "--json", str(out_json)]) == 0
     text = capsys.readouterr().out
     assert f"run {run_dir.name}" in text and "regime" in text
-    assert json.loads(out_json.read_text())["run"] == run_dir.name
+    js = json.loads(out_json.read_text())
+    assert js["run"] == run_dir.name
+    # the label is shown beside the numbers that produced it: text, JSON and CSV
+    iso = js["isotropy"]
+    assert iso == pytest.approx(0.45, abs=0.01)  # the time mean of isotropy_fluct (TRUE)
+    line = next(ln for ln in text.splitlines() if ln.strip().startswith("from "))
+    assert f"isotropy {iso:.3g}" in line and "viscous_ratio" in line and "quiet_fraction" in line
+    assert "basis: fluctuations" in line
+    import csv
+    cols = next(csv.reader(open(out_csv)))
+    for c in ("regime", "regime_reason", "regime_basis", "isotropy", "viscous_ratio", "l_nu",
+              "eta", "quiet_fraction", "flux_cv", "growth", "perturbation"):
+        assert c in cols and c in js, c
     assert main(["summary", str(run_dir), "--start", "200"]) == 0
     assert "[200" in capsys.readouterr().out
     # A table of one run cannot be fitted (3 points needed): bad input, exit 2.

@@ -176,6 +176,13 @@ def test_tiny_sweep_runs_stops_resumes_and_summarizes(tmp_path):
     assert [row["member"] for row in rows] == ["BPe0.5", "BPe5"]
     assert [float(row["BPe"]) for row in rows] == [0.5, 5.0]
     assert "needs 3 or more distinct BPe values" in r.stdout
+    # each member's label is printed beside the numbers of the table that produced it
+    for row in rows:
+        line = next(ln for ln in r.stdout.splitlines() if ln.strip().startswith(row["member"] + " "))
+        assert row["regime"] in line
+        for k in ("isotropy", "viscous_ratio", "eta", "quiet_fraction"):
+            shown = f"{float(row[k]):.4g}" if row[k] else "-"
+            assert shown in line.split(row["regime"])[-1], (k, shown, line)
 
 
 def test_failed_member_reports_its_reason(tmp_path):
@@ -222,6 +229,20 @@ def test_fit_rows_recovers_exact_power_law_and_selects(tmp_path):
     assert sel["Lz_turb"]["n"] == 5 and sel["Lz_turb"]["x_hi"] == pytest.approx(bpe[4])
     sel = {f["y"]: f for f in fit_rows(rows, x_range=(1, 50))}  # 1, 3.16, 10, 31.6
     assert sel["Lz_turb"]["n"] == 4
+
+
+def test_fit_rows_keeps_integer_bpe():
+    """BPe read as an int (1, 10, 100) is a number like 1.0: the exact law y = 2 x^(-1/2)
+    fits with p = -1/2 over all three rows (the selection dropped ints before)."""
+    from shearmix.tools.sweeps.summary import fit_rows
+    rows = [{"BPe": b, "D_flux": 2.0 * b ** -0.5, "regime": "stratified_turbulence"}
+            for b in (1, 10, 100.0)]
+    (f,) = fit_rows(rows, quantities=("D_flux",))
+    assert f["n"] == 3 and f["p"] == pytest.approx(-0.5, abs=1e-12)
+    # a bool or a text cell is not a BPe
+    (g,) = fit_rows(rows + [{"BPe": True, "D_flux": 1.0}, {"BPe": "3", "D_flux": 1.0}],
+                    quantities=("D_flux",))
+    assert g["n"] == 3
 
 
 # ------------------------------------------------------------------ batch scripts
