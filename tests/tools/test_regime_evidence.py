@@ -50,8 +50,8 @@ def test_order_split_and_interval(tmp_path):
     eta = ev["eta_min"]  # 0.2, intermittent when eta < 0.2: (0.15, 0.3]
     assert eta["interval"] == (0.15, 0.3, False, True)
     assert sum(p[4] for p in eta["points"]) == 2
-    lam = ev["laminar_ratio"]  # 1e-3, laminar when perturbation <= 1e-3: nobody; [-inf, 0.4)
-    assert lam["interval"][1] == 0.4 and not any(p[4] for p in lam["points"])
+    lam = ev["laminar_ratio"]  # 1e-3, laminar when perturbation <= 1e-3: nobody; [0, 0.4)
+    assert lam["interval"] == (0.0, 0.4, True, False) and not any(p[4] for p in lam["points"])
 
 
 def test_text_puts_the_marker_between_the_members(tmp_path):

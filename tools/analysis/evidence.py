@@ -87,11 +87,12 @@ def threshold_evidence(rows, thresholds=None):
         if pts:
             low_side = [p[2] for p in pts if _fires(p[2], op, value) == (op in ("<", "<="))]
             high_side = [p[2] for p in pts if _fires(p[2], op, value) != (op in ("<", "<="))]
-            lo = max(low_side) if low_side else -math.inf
+            # thresholds are >= 0, so with no member below the interval starts at 0
+            lo = max(low_side) if low_side else 0.0
             hi = min(high_side) if high_side else math.inf
             # "<" and ">=" put a tie above the threshold; ">" and "<=" below it
             above_ties = op in ("<", ">=")
-            interval = (lo, hi, not above_ties and bool(low_side), above_ties and bool(high_side))
+            interval = (lo, hi, not above_ties or not low_side, above_ties and bool(high_side))
         out.append({"name": name, "value": value, "number": number, "op": op, "label": label,
                     "doc": doc, "points": pts, "missing": missing, "interval": interval,
                     "present": present})

@@ -181,7 +181,7 @@ def _field_doc(src, name):
         if isinstance(node, ast.AnnAssign) and getattr(node.target, "id", "") == name:
             nxt = body[i + 1]
             if isinstance(nxt, ast.Expr) and isinstance(nxt.value, ast.Constant):
-                return " ".join(str(nxt.value.value).split())
+                return " ".join(str(nxt.value.value).split()).replace("``", "")
     return ""
 
 
