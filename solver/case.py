@@ -158,6 +158,27 @@ SCHEMA: dict[str, Key] = {
 
 SECTIONS = sorted({k.split(".")[0] for k in SCHEMA if "." in k})
 
+#: kinds of a tracer's initial state
+TRACER_INITIAL_KINDS = ("zero", "mode", "file")
+#: a tracer's name: it names its datasets and series columns (c_rms.NAME ...)
+TRACER_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+
+#: the keys of one passive tracer, under ``tracers.NAME.`` (docs/equations.md#tracers)
+TRACER_SCHEMA: dict[str, Key] = {
+    "Pe": Key("float", None, "tracer Peclet number Pe_c (give Pe or Sc)", lower=0.0,
+              lower_open=True),
+    "Sc": Key("float", None, "Schmidt number Sc = Pe_c/Re (give Pe or Sc)", lower=0.0,
+              lower_open=True),
+    "gradient": Key("float", 1.0, "imposed uniform mean vertical gradient G"),
+    "initial.kind": Key("choice", "zero", "initial tracer field", choices=TRACER_INITIAL_KINDS),
+    "initial.amplitude": Key("float", 0.1, "amplitude of the mode (kind: mode) or factor on "
+                             "the file's field (kind: file)", lower=0.0),
+    "initial.nx": Key("int", 0, "x wave index of the mode (kind: mode)"),
+    "initial.ny": Key("int", 0, "y wave index of the mode"),
+    "initial.nz": Key("int", 1, "z wave index of the mode"),
+    "initial.path": Key("str", None, "HDF5 file with a physical field 'c' (kind: file)"),
+}
+
 
 # ---------------------------------------------------------------- lengths
 _OPS: dict[type, Callable] = {ast.Add: operator.add, ast.Sub: operator.sub,
@@ -372,6 +393,15 @@ class Case:
         d = self.get("output.directory")
         return d if d else os.path.join("runs", self.name)
 
+    @property
+    def tracers(self) -> tuple:
+        """The case's passive tracers, in the order given (:class:`Tracer`)."""
+        out = []
+        for name, spec in (self.raw.get("tracers") or {}).items():
+            Pe = spec["Pe"] if spec["Pe"] is not None else spec["Sc"] * self.Re
+            out.append(Tracer(name, float(Pe), float(spec["gradient"]), dict(spec["initial"])))
+        return tuple(out)
+
     def to_yaml(self) -> str:
         """The full case (defaults included) as YAML text, for every file written."""
         return yaml.safe_dump(self.raw, sort_keys=False, default_flow_style=False)
@@ -428,9 +458,45 @@ def _apply_overrides(data: dict, assignments, source: str) -> None:
                 parsed.append((key.strip(), value))
         items = parsed
     for key, value in items:
+        if key == "tracers" or key.startswith("tracers."):
+            _set_tracer_key(data, key, value)
+            continue
         if key not in SCHEMA:
             raise CaseError(f"--set {key}: unknown key{_suggest(key)}")
         set_dotted(data, key, value)
+
+
+def _set_tracer_key(data: dict, key: str, value) -> None:
+    """``--set tracers.NAME.KEY=V``; ``tracers.NAME=null`` removes a tracer and
+    ``tracers=null`` all of them."""
+    parts = key.split(".")
+    if len(parts) == 1:
+        if value not in (None, {}):
+            raise CaseError("--set tracers: only tracers=null (remove every tracer) is "
+                            "allowed; set tracers.NAME.KEY=VALUE")
+        data.pop("tracers", None)
+        return
+    if len(parts) == 2:
+        if value is not None:
+            raise CaseError(f"--set {key}: give a key of the tracer, e.g. {key}.Sc=10, or "
+                            f"{key}=null to remove it")
+        if isinstance(data.get("tracers"), dict):
+            data["tracers"].pop(parts[1], None)
+        return
+    sub = ".".join(parts[2:])
+    if sub not in TRACER_SCHEMA:
+        raise CaseError(f"--set {key}: unknown tracer key {sub!r}; allowed: "
+                        f"{', '.join(TRACER_SCHEMA)}")
+    if not isinstance(data.get("tracers"), dict):
+        data["tracers"] = {}
+    tracer = data["tracers"].get(parts[1])
+    if not isinstance(tracer, dict):
+        tracer = data["tracers"][parts[1]] = {}
+    if sub == "Pe":  # one of the two: the one set now wins
+        tracer.pop("Sc", None)
+    elif sub == "Sc":
+        tracer.pop("Pe", None)
+    set_dotted(tracer, sub, value)
 
 
 def set_dotted(data: dict, key: str, value) -> None:
@@ -538,6 +604,9 @@ def validate(data: dict, source: str = "<case>") -> Case:
     """Check every key, fill defaults and check the model's parameters."""
     flat: dict[str, Any] = {}
     where: dict[str, str] = {}
+    data = dict(data)
+    tracers = _validate_tracers(data.pop("tracers", None), data.get("parameters") or {},
+                                source)
     _flatten(data, "", flat, source, where)
     values = {}
     for key, spec in SCHEMA.items():
@@ -591,6 +660,8 @@ def validate(data: dict, source: str = "<case>") -> Case:
         for part in parts[:-1]:
             node = node.setdefault(part, {})
         node[parts[-1]] = value
+    if tracers:
+        raw["tracers"] = tracers
     case = Case(raw=raw, source=source)
 
     lx, ly, lz = case.lengths
@@ -609,10 +680,84 @@ def validate(data: dict, source: str = "<case>") -> Case:
             if abs(idx) > dealias_cutoff(n) or (axis == "z" and idx < 0):
                 raise CaseError(f"{source}: initial.mode.n{axis}: must lie within the dealiased "
                                 f"band 0..{dealias_cutoff(n)} (|n| for x, y), got {idx}")
+    for name, spec in tracers.items():
+        ini = spec["initial"]
+        if ini["kind"] == "mode":
+            for axis, n in zip("xyz", case.shape):
+                idx = ini[f"n{axis}"]
+                if abs(idx) > dealias_cutoff(n) or (axis == "z" and idx < 0):
+                    raise CaseError(f"{source}: tracers.{name}.initial.n{axis}: must lie within "
+                                    f"the dealiased band 0..{dealias_cutoff(n)} (|n| for x, y), "
+                                    f"got {idx}")
+            if (ini["nx"], ini["ny"], ini["nz"]) == (0, 0, 0):
+                raise CaseError(f"{source}: tracers.{name}.initial: the mode (0, 0, 0) is the "
+                                "mean, which the tracer equation does not carry")
     if int(round(turns)) > dealias_cutoff(case.Ny):
         raise CaseError(f"{source}: grid.Ny: the forcing mode ky = kf needs Ny > "
                         f"{3 * int(round(turns))} after 2/3 dealiasing, got {case.Ny}")
     return case
+
+
+def _validate_tracers(section, parameters: dict, source: str) -> dict:
+    """The ``tracers`` section, checked and with defaults filled: ``{name: {...}}``."""
+    if section is None:
+        return {}
+    if not isinstance(section, dict):
+        raise CaseError(f"{source}: tracers: must be a mapping of tracer names to their keys "
+                        f"(e.g. tracers: {{salt: {{Sc: 10}}}}), got {type(section).__name__}")
+    out = {}
+    for name, body in section.items():
+        if not isinstance(name, str) or not TRACER_NAME.match(name):
+            raise CaseError(f"{source}: tracers: {name!r} is not a tracer name (a letter, then "
+                            "letters, digits or '_')")
+        if name in TRACER_SCHEMA or name == "initial" or not isinstance(body, dict):
+            raise CaseError(f"{source}: tracers.{name}: a tracer needs a name and its keys "
+                            f"under it, e.g. tracers: {{salt: {{Sc: 10}}}}; got "
+                            f"{name}: {body!r}")
+        flat: dict = {}
+        for k, v in body.items():
+            if k == "initial" and isinstance(v, dict):
+                flat.update({f"initial.{kk}": vv for kk, vv in v.items()})
+            else:
+                flat[str(k)] = v
+        values = {}
+        for k in flat:
+            if k not in TRACER_SCHEMA:
+                raise CaseError(f"{source}: tracers.{name}.{k}: unknown tracer key; allowed: "
+                                f"{', '.join(TRACER_SCHEMA)}")
+        for k, spec in TRACER_SCHEMA.items():
+            v = _check_value(f"tracers.{name}.{k}", spec, flat.get(k), source)
+            values[k] = spec.default if v is None else v
+        if values["Pe"] is not None and values["Sc"] is not None:
+            raise CaseError(f"{source}: tracers.{name}: Pe and Sc both given; give one "
+                            "(Pe = Re*Sc)")
+        if values["Pe"] is None and values["Sc"] is None:
+            raise CaseError(f"{source}: tracers.{name}: needs its Peclet number Pe or its "
+                            "Schmidt number Sc")
+        if values["initial.kind"] == "file" and not values["initial.path"]:
+            raise CaseError(f"{source}: tracers.{name}.initial.path: missing; initial.kind "
+                            "'file' needs the field's file")
+        entry = {"Pe": values["Pe"], "Sc": values["Sc"], "gradient": values["gradient"],
+                 "initial": {k.split(".", 1)[1]: values[k] for k in TRACER_SCHEMA
+                             if k.startswith("initial.")}}
+        out[name] = entry
+    return out
+
+
+@dataclass(frozen=True)
+class Tracer:
+    """A passive scalar ``c`` with mean gradient ``G`` and Peclet number ``Pe``
+    (docs/equations.md#tracers)."""
+
+    name: str
+    Pe: float
+    G: float
+    initial: dict
+
+    @property
+    def field(self) -> str:
+        """Its field name in the state, checkpoints and snapshots."""
+        return "c." + self.name
 
 
 def key_table() -> list[tuple[str, str, str, str]]:
@@ -621,4 +766,7 @@ def key_table() -> list[tuple[str, str, str, str]]:
     for key, spec in SCHEMA.items():
         default = "-" if spec.default is None else str(spec.default)
         rows.append((key, default, spec.allowed(), spec.doc))
+    for key, spec in TRACER_SCHEMA.items():
+        default = "-" if spec.default is None else str(spec.default)
+        rows.append(("tracers.NAME." + key, default, spec.allowed(), spec.doc))
     return rows

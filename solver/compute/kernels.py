@@ -223,9 +223,10 @@ def velocity_rows(a, p, basis, band, u, v, w, lo, hi) -> None:
                  basis.kh[:, lo:hi], basis.kz, keepx, keepy[lo:hi], nkz, u, v, w)
 
 
-def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> None:
-    """:func:`momentum_advection` (and :func:`scalar_advection` of ``fluxes`` into
-    ``out[2]`` unless None) for the local ky rows ``lo:hi`` only, compiled only.
+def advection_rows(stresses, scalars, scale, band, kvec, basis, out, lo, hi) -> None:
+    """:func:`momentum_advection` (and :func:`scalar_advection` of each ``(fluxes,
+    index)`` of ``scalars`` into ``out[index]``) for the local ky rows ``lo:hi`` only,
+    compiled only.
 
     The transforms are ``(nx, hi - lo, nz_kept)`` arrays of those rows (what
     :class:`shearmix.solver.compute.roundtrip.RoundTrip` hands its ``finish``);
@@ -237,9 +238,9 @@ def advection_rows(stresses, fluxes, scale, band, kvec, basis, out, lo, hi) -> N
     s, c, kh = basis.s[:, lo:hi], basis.c[:, lo:hi], basis.kh[:, lo:hi]
     _momentum_nb(*stresses, scale, keepx, keepy[lo:hi], nkz, kx, ky[lo:hi], kz, s, c, kh,
                  out[:2, :, lo:hi])
-    if fluxes is not None:
+    for fluxes, index in scalars:
         _scalar_flux_nb(*fluxes, scale, keepx, keepy[lo:hi], nkz, kx, ky[lo:hi], kz,
-                        out[2, :, lo:hi])
+                        out[index, :, lo:hi])
 
 
 # ---------------------------------------------------------------- physical products
@@ -567,6 +568,20 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
     def table(r, c):
         return operator.flat_entry(r, c).reshape(shape)
 
+    followers = getattr(operator, "followers", ())
+    if followers:
+        # a follower's L y needs its leader's state before the leader's solve;
+        # the same operations as stage_update_numpy, on the followers' rows
+        rows = [f for f, _ in followers]
+        operator.apply_followers(y)
+        for f in rows:
+            if hb:
+                x[f] += hb * z[f]
+                x[f] += hb * y[f]
+            if not last:
+                y[f] *= him
+                y[f] += x[f]
+                y[f] += hex_ * z[f]
     for block in operator.blocks:
         if len(block) == 1:
             f = block[0]
@@ -576,6 +591,8 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
             _stage_pair_nb(x[f], x[h], y[f], y[h], z[f], z[h],
                            table(f, f), table(f, h), table(h, f), table(h, h),
                            *band, hb, hex_, him, haii, last)
+    if followers and not last:
+        operator.solve_followers(y, haii)
 
 
 class _TinyFrame:
@@ -619,7 +636,7 @@ def warm_up() -> None:
     for width in (1, 2):
         chunks = [b[:, :width] for b in buffers]
         velocity_rows(y[0], y[1], frame, band, *chunks[:3], 0, width)
-        advection_rows(chunks[:5], chunks[5:], 1.0, band, kvec, frame, out, 0, width)
+        advection_rows(chunks[:5], [(chunks[5:], 2)], 1.0, band, kvec, frame, out, 0, width)
     # diagnostics and the stage update
     z = spectral()
     z.flags.writeable = False  # diagnostics read the state through the step's read-only view

@@ -74,9 +74,10 @@ def last_level_cache_bytes(base: str = "/sys/devices/system/cpu/cpu0/cache") -> 
     return min(best, CACHE_CAP_PER_CPU * sharing) if sharing else best
 
 
-def product_fields(model_has_T_advection: bool) -> int:
-    """Physical fields on the grid at once: u, v, w (, T) in, 5 (+3) products out."""
-    return 8 if model_has_T_advection else 5
+def product_fields(advected_scalars: int) -> int:
+    """Physical fields on the grid at once: u, v, w and the scalars in; 5 products of
+    the velocity and 3 per advected scalar out."""
+    return 5 + 3 * int(advected_scalars)
 
 
 class WholeArrays:
@@ -97,7 +98,7 @@ class WholeArrays:
 
     def __call__(self, y, out) -> None:
         fft, physics, P, fields = self.fft, self.physics, self.spectral, self.fields
-        physics.to_cartesian(y, *P[:3], P[3] if self.inputs > 3 else None)
+        physics.to_cartesian(y, *P[:self.inputs])
         for spec, field in zip(P[:self.inputs], fields):
             fft.inverse(spec, field)
         physics.products(fields)
@@ -156,7 +157,7 @@ class ByBlocks:
             if clock:
                 clock.lap("advection assembly")
             return
-        physics.to_cartesian(y, *P[:3], P[3] if self.inputs > 3 else None)
+        physics.to_cartesian(y, *P[:self.inputs])
         if clock:
             clock.lap("frame to Cartesian")
         self.trip(inputs, P, physics.products, self._rows_back, self._rows_out)

@@ -64,10 +64,13 @@ class TimeSeriesWriter:
         segs = segments_of(attrs) or self._unrecorded()
         if not segs or segment_changes(segs[-1]["case"], case.to_yaml()):
             self.new_segment = case.to_yaml()
+        # a column new in this segment (a tracer added at a restart) holds NaN
+        # for the records before it, so every dataset keeps one entry per record
+        have = int(self.fh["step"].shape[0]) if "step" in self.fh else 0
         for name in self.names:
             if name not in self.fh:
-                self.fh.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8",
-                                       chunks=(1024,))
+                self.fh.create_dataset(name, data=np.full(have, np.nan), maxshape=(None,),
+                                       dtype="f8", chunks=(1024,))
 
     def _unrecorded(self) -> list:
         """A file from before segments, with records: they are one segment."""
@@ -95,7 +98,8 @@ class TimeSeriesWriter:
                 _store_segments(self.fh.attrs, self._unrecorded())
             add_segment(self.fh.attrs, int(first["step"]), float(first["t"]), self.new_segment)
             self.new_segment = None
-        for name in self.names:
+        # every column, also one no longer recorded (a tracer removed at a restart: NaN)
+        for name in self.fh:
             ds = self.fh[name]
             n = ds.shape[0]
             ds.resize((n + k,))

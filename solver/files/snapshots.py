@@ -42,8 +42,11 @@ COLLECTION = "snapshots.xmf"
 _NAME = re.compile(r"^snap_(\d{9,})\.xmf$")
 
 
-def snapshot_fields(model: str) -> tuple:
-    return ("u", "v", "w", "T") if model == "boussinesq" else ("u", "v", "w", "b")
+def snapshot_fields(model: str, tracers=()) -> tuple:
+    """The fields a snapshot holds: velocity, ``T`` (or the low-Peclet ``b``), each
+    tracer as ``c.NAME``."""
+    base = ("u", "v", "w", "T") if model == "boussinesq" else ("u", "v", "w", "b")
+    return base + tuple(tr.field for tr in tracers)
 
 
 def strided_shape(shape, stride: int) -> tuple:
@@ -59,8 +62,10 @@ def buoyancy_spectral(view) -> np.ndarray:
 
 def local_fields(view) -> dict:
     """This rank's physical x-slabs of the snapshot fields, by name."""
-    u, v, w, T = view.physical()
+    tracers = tuple(tr.field for tr in view.case.tracers)
+    u, v, w, T, *scalars = view.to_physical(view.state, tracers)
     out = {"u": u, "v": v, "w": w}
+    out.update(zip(tracers, scalars))
     if T is not None:
         out["T"] = T
     else:
@@ -82,7 +87,7 @@ def write_snapshot(sim, directory: str, single: bool = False, stride: int = 1) -
     return the path."""
     sim = step_view(sim)
     g = sim.grid
-    names = snapshot_fields(sim.case.model)
+    names = snapshot_fields(sim.case.model, sim.case.tracers)
     path = os.path.join(directory, f"snap_{sim.step_count:09d}.h5")
     shape = strided_shape(g.shape, stride)
     dtype = "<f4" if single else "<f8"

@@ -120,8 +120,15 @@ def compute_spectra(sim, bins=None):
     theta, name = thermal_amplitudes(sim)
     power = 0.5 * (theta.real ** 2 + theta.imag ** 2)
     thermal = {d: bins.bin(power, d) for d in DIRECTIONS}
+    tracers = sim.case.tracers
+    scalar = {}
+    for tr in tracers:
+        c = sim.state[sim.fields.index(tr.field)]
+        power = 0.5 * (c.real ** 2 + c.imag ** 2)
+        scalar[tr.name] = {d: bins.bin(power, d) for d in DIRECTIONS}
     # one reduction for everything: pack, sum over ranks, unpack
     parts = [kinetic[d].ravel() for d in DIRECTIONS] + [thermal[d] for d in DIRECTIONS]
+    parts += [scalar[tr.name][d] for tr in tracers for d in DIRECTIONS]
     total = sim.comm.sum(np.concatenate(parts))
     out_k, out_t, pos = {}, {}, 0
     for d in DIRECTIONS:
@@ -132,7 +139,14 @@ def compute_spectra(sim, bins=None):
         n = bins.nbins[d]
         out_t[d] = total[pos:pos + n]
         pos += n
-    return {"kinetic": out_k, "thermal": out_t, "thermal_field": name}
+    out_c = {}
+    for tr in tracers:
+        out_c[tr.name] = {}
+        for d in DIRECTIONS:
+            n = bins.nbins[d]
+            out_c[tr.name][d] = total[pos:pos + n]
+            pos += n
+    return {"kinetic": out_k, "thermal": out_t, "thermal_field": name, "tracers": out_c}
 
 
 class SpectraWriter:
@@ -156,6 +170,15 @@ class SpectraWriter:
                                        dtype="f8", chunks=(16, 3, n))
                 self.fh.create_dataset(f"thermal/{d}", shape=(0, n), maxshape=(None, n),
                                        dtype="f8", chunks=(16, n))
+        have = self.fh["t"].shape[0]
+        for tr in case.tracers:
+            for d in DIRECTIONS:
+                n = bins.nbins[d]
+                if f"tracers/{tr.name}/{d}" not in self.fh:
+                    # new at a restart: NaN for the records before it
+                    self.fh.create_dataset(f"tracers/{tr.name}/{d}",
+                                           data=np.full((have, n), np.nan),
+                                           maxshape=(None, n), dtype="f8", chunks=(16, n))
 
     def append(self, t, step, spectra):
         n = self.fh["t"].shape[0]
@@ -167,6 +190,12 @@ class SpectraWriter:
                 ds = self.fh[f"{group}/{d}"]
                 ds.resize((n + 1,) + ds.shape[1:])
                 ds[n] = spectra[group][d]
+        # every tracer on file, one removed at a restart as NaN
+        for name in self.fh.get("tracers", {}):
+            for d in DIRECTIONS:
+                ds = self.fh[f"tracers/{name}/{d}"]
+                ds.resize((n + 1,) + ds.shape[1:])
+                ds[n] = spectra["tracers"].get(name, {}).get(d, np.nan)
         self.fh.flush()
 
     def close(self):
@@ -242,6 +271,8 @@ def read_spectra(path):
                "wavenumbers": {d: fh[f"wavenumbers/{d}"][()] for d in DIRECTIONS},
                "kinetic": {d: fh[f"kinetic/{d}"][()][keep] for d in DIRECTIONS},
                "thermal": {d: fh[f"thermal/{d}"][()][keep] for d in DIRECTIONS},
+               "tracers": {name: {d: fh[f"tracers/{name}/{d}"][()][keep] for d in DIRECTIONS}
+                           for name in fh.get("tracers", {})},
                "attrs": {k: (v.decode() if isinstance(v, bytes) else v)
                          for k, v in fh.attrs.items()}}
     return out

@@ -69,7 +69,45 @@ def compute(view) -> dict:
     d["D_estimate"] = d["w_rms"] * d["Lz_turb"]
     d["Pe_turb"] = Pe * d["w_rms"] * d["Lz_turb"] if Pe else nan
     d["budget_residual"] = nan
+    d.update(tracer_diagnostics(view))
     return {k: (int(v) if k == "step" else float(v)) for k, v in d.items()}
+
+
+#: per-tracer quantities, recorded as ``<name>.<tracer>`` (docs/equations.md#tracers)
+TRACER_NAMES = ("c_rms", "wc", "D_c", "chi_c", "D_chi", "c_budget_residual")
+
+
+def tracer_series_names(tracers) -> tuple:
+    """The series keys of the case's tracers, in order."""
+    return tuple(f"{q}.{tr.name}" for tr in tracers for q in TRACER_NAMES)
+
+
+def tracer_diagnostics(view) -> dict:
+    """Per tracer ``c`` (mean gradient ``G``, Peclet number ``Pe_c``): ``c_rms``, the
+    flux ``<w c>``, ``D_c = -<w c>/G``, ``chi_c = (1/Pe_c) <|grad c|^2>`` and
+    ``D_chi = chi_c/G^2`` (collective call; one reduction for all tracers)."""
+    tracers = view.case.tracers
+    if not tracers:
+        return {}
+    g, basis, y = view.grid, view.basis, view.state
+    w = -basis.alpha * y[1]  # w_k = -alpha p_k
+    local = []
+    for tr in tracers:
+        c = y[view.fields.index(tr.field)]
+        c2 = (c * c.conj()).real
+        local += [g.volume_sum(c2), g.volume_sum((w * c.conj()).real), g.volume_sum(g.k2 * c2)]
+    tot = view.comm.sum(np.array(local))
+    d = {}
+    for i, tr in enumerate(tracers):
+        c2, wc, grad2 = tot[3 * i:3 * i + 3]
+        chi = grad2 / tr.Pe
+        d[f"c_rms.{tr.name}"] = math.sqrt(max(c2, 0.0))
+        d[f"wc.{tr.name}"] = wc
+        d[f"D_c.{tr.name}"] = -wc / tr.G if tr.G else float("nan")
+        d[f"chi_c.{tr.name}"] = chi
+        d[f"D_chi.{tr.name}"] = chi / tr.G ** 2 if tr.G else float("nan")
+        d[f"c_budget_residual.{tr.name}"] = float("nan")
+    return d
 
 
 class BudgetCheck:
@@ -90,3 +128,14 @@ class BudgetCheck:
         rate = (d["K"] - prev["K"]) / (d["t"] - prev["t"])
         rhs = 0.5 * ((d["I"] - d["eps"] + d["J"]) + (prev["I"] - prev["eps"] + prev["J"]))
         return rate - rhs
+
+    def tracers(self, d: dict, prev: dict | None, tracers) -> None:
+        """In place: each tracer's ``d/dt <c^2/2> - (-G <w c> - chi_c)``, the same
+        difference quotient and trapezoid as the kinetic residual."""
+        if prev is None or d["t"] <= prev["t"]:
+            return
+        for tr in tracers:
+            n = tr.name
+            rate = 0.5 * (d[f"c_rms.{n}"] ** 2 - prev[f"c_rms.{n}"] ** 2) / (d["t"] - prev["t"])
+            rhs = 0.5 * sum(-tr.G * r[f"wc.{n}"] - r[f"chi_c.{n}"] for r in (d, prev))
+            d[f"c_budget_residual.{n}"] = rate - rhs

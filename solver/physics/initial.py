@@ -11,6 +11,10 @@ of shape ``(Nx, Ny, Nz)`` on the case grid, x along the first axis, points at
 starts from the laminar flow plus ``initial.amplitude`` times these fields
 (the velocity is projected onto its divergence-free part). Each rank reads
 only its own x-slab.
+
+Passive tracers (docs/equations.md#tracers) start from zero, a single mode
+``amplitude cos(k.x)`` or the dataset ``c`` of an HDF5 file laid out as above,
+each by its own ``tracers.NAME.initial`` keys.
 """
 from __future__ import annotations
 
@@ -122,3 +126,38 @@ def read_perturbation(path: str, grid, need_T: bool) -> dict:
                                         f"the case grid is {grid.shape}")
             out[name] = np.asarray(ds[grid.x_start:grid.x_start + grid.nx_local], dtype=float)
     return out
+
+
+def apply_tracer_initial(sim, tracer) -> None:
+    """Set the tracer's field of ``sim``'s state from ``tracer.initial``
+    (a :class:`shearmix.solver.case.Tracer`)."""
+    ini, g = tracer.initial, sim.grid
+    i = sim.fields.index(tracer.field)
+    if ini["kind"] == "zero":
+        sim.state[i] = 0
+        return
+    amp = float(ini["amplitude"])
+    if ini["kind"] == "mode":
+        x, y, z = g.physical_coordinates()
+        k = [2 * np.pi / L * n for L, n in zip(g.lengths, (ini["nx"], ini["ny"], ini["nz"]))]
+        field = amp * np.cos(k[0] * x + k[1] * y + k[2] * z) * np.ones(g.physical_shape)
+    else:
+        field = amp * read_field(ini["path"], g, "c")
+    sim.set_scalar_physical(tracer.field, field)
+
+
+def read_field(path: str, grid, name: str) -> np.ndarray:
+    """This rank's x-slab of the physical dataset ``name`` of an HDF5 file on ``grid``."""
+    import h5py
+    try:
+        fh = h5py.File(path, "r")
+    except (OSError, FileNotFoundError) as exc:
+        raise InitialStateError(f"{path}: cannot open field file ({exc})") from None
+    with fh:
+        if name not in fh:
+            raise InitialStateError(f"{path}: no dataset '{name}'")
+        ds = fh[name]
+        if tuple(ds.shape) != grid.shape:
+            raise InitialStateError(f"{path}: dataset '{name}' has shape {tuple(ds.shape)}, "
+                                    f"the case grid is {grid.shape}")
+        return np.asarray(ds[grid.x_start:grid.x_start + grid.nx_local], dtype=float)

@@ -4,6 +4,11 @@ Fields couple only within a wavenumber, and in blocks of at most two (the
 poloidal velocity and temperature of the full model exchange energy through
 internal gravity waves). :meth:`LinearOperator.solve` inverts ``I - h L``
 exactly per wavenumber (Cramer's rule for a 2 x 2 block).
+
+A field fed one way by another and feeding nothing back (a passive tracer,
+``L[c, p] != 0``, ``L[p, c] = 0``) is a *follower*: ``I - h L`` is then block
+lower triangular, and the follower is solved exactly after the block it
+follows, ``c <- (c + h L[c,p] p_new) / (1 - h L[c,c])``.
 """
 from __future__ import annotations
 
@@ -49,11 +54,21 @@ class LinearOperator:
                 i = parent[i]
             return i
 
+        one_way = {(r, c) for (r, c) in self.monomials
+                   if r != c and (c, r) not in self.monomials}
+        #: ``(follower, leader)`` pairs: ``L[f, l] != 0`` and ``L[l, f] = 0``
+        self.followers = sorted(one_way)
+        led = {f for f, _ in self.followers}
+        if len(led) != len(self.followers) or led & {l for _, l in self.followers}:
+            raise ValueError("a one-way coupled field must follow exactly one field "
+                             "that follows none")
         for (r, c) in self.monomials:
-            parent[find(r)] = find(c)
+            if (r, c) not in one_way:
+                parent[find(r)] = find(c)
         groups: dict[int, list[int]] = {}
         for i in range(len(self.fields)):
-            groups.setdefault(find(i), []).append(i)
+            if i not in led:
+                groups.setdefault(find(i), []).append(i)
         self.blocks = [tuple(g) for g in groups.values()]
         if any(len(b) > 2 for b in self.blocks):
             raise ValueError("linear blocks larger than 2x2 are not supported")
@@ -89,9 +104,26 @@ class LinearOperator:
             for r in block:
                 for c in block:
                     self.flat_entry(r, c)
+        for f, lead in self.followers:
+            self.entry(f, f)
+            self.entry(f, lead)
+
+    def apply_followers(self, y: np.ndarray) -> None:
+        """In place, the followers' rows of ``y <- L y`` (before the leaders change)."""
+        for f, lead in self.followers:
+            y[f] *= self.entry(f, f)
+            y[f] += self.entry(f, lead) * y[lead]
+
+    def solve_followers(self, y: np.ndarray, h: float) -> None:
+        """In place, the followers' rows of ``y <- (I - h L)^{-1} y``, once the leaders'
+        rows are solved: ``y_f <- (y_f + h L[f,l] y_l) / (1 - h L[f,f])``."""
+        for f, lead in self.followers:
+            y[f] += (h * self.entry(f, lead)) * y[lead]
+            y[f] /= 1.0 - h * self.entry(f, f)
 
     def apply(self, y: np.ndarray) -> np.ndarray:
         """In place: ``y <- L y``."""
+        self.apply_followers(y)
         for b in self.blocks:
             if len(b) == 1:
                 i = b[0]
@@ -120,4 +152,5 @@ class LinearOperator:
                 m_ij = -h * self.entry(i, j)
                 m_ji = -h * self.entry(j, i)
                 kernels.solve_pair(m_ii, m_ij, m_ji, m_jj, y[i], y[j])
+        self.solve_followers(y, h)
         return y

@@ -20,6 +20,8 @@ from shearmix.solver.physics.terms import (
     QuasiStaticBuoyancy,
     ShearForcing,
     ThermalDiffusion,
+    TracerDiffusion,
+    TracerMeanGradient,
     Viscosity,
 )
 
@@ -53,21 +55,33 @@ class Model:
         return LinearOperator(self.fields, entries, grid, basis)
 
 
-def boussinesq(Re, B, Pe, F0, kf) -> Model:
-    return Model("boussinesq", ("a", "p", "T"),
+def _tracer_terms(tracers) -> tuple:
+    """Each passive tracer's implicit terms (diffusion, its mean gradient)."""
+    out = []
+    for tr in tracers:
+        out += [TracerDiffusion(tr.field, tr.Pe), TracerMeanGradient(tr.field, tr.G)]
+    return tuple(out)
+
+
+def boussinesq(Re, B, Pe, F0, kf, tracers=()) -> Model:
+    names = tuple(tr.field for tr in tracers)
+    return Model("boussinesq", ("a", "p", "T") + names,
                  (Viscosity(Re), ThermalDiffusion(Pe), Buoyancy(B),
-                  BackgroundStratification(), Advection(with_temperature=True),
+                  BackgroundStratification(), *_tracer_terms(tracers),
+                  Advection(with_temperature=True, tracers=names),
                   ShearForcing(F0, kf)))
 
 
-def lowpe(Re, BPe, F0, kf) -> Model:
-    return Model("lowpe", ("a", "p"),
-                 (Viscosity(Re), QuasiStaticBuoyancy(BPe), Advection(with_temperature=False),
+def lowpe(Re, BPe, F0, kf, tracers=()) -> Model:
+    names = tuple(tr.field for tr in tracers)
+    return Model("lowpe", ("a", "p") + names,
+                 (Viscosity(Re), QuasiStaticBuoyancy(BPe), *_tracer_terms(tracers),
+                  Advection(with_temperature=False, tracers=names),
                   ShearForcing(F0, kf)))
 
 
 def model_for(case: Case) -> Model:
-    """The model a case asks for, with its parameters."""
+    """The model a case asks for, with its parameters and passive tracers."""
     if case.model == "boussinesq":
-        return boussinesq(case.Re, case.B, case.Pe, case.F0, case.kf)
-    return lowpe(case.Re, case.BPe, case.F0, case.kf)
+        return boussinesq(case.Re, case.B, case.Pe, case.F0, case.kf, case.tracers)
+    return lowpe(case.Re, case.BPe, case.F0, case.kf, case.tracers)

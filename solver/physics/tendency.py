@@ -4,8 +4,9 @@ Momentum advection in divergence form, ``-(u.grad)u = -div(u u)``, needs the
 five products ``uu-ww, vv-ww, uv, uw, vw``: the isotropic part ``ww I`` of the
 stress is a gradient, which the projection onto the Craya-Herring frame
 removes (a standard saving, e.g. Canuto et al. 2007, Spectral Methods:
-Evolution to Complex Geometries, section 3.3). Temperature advection is
-``-div(u T)``. Per evaluation: 3 (+1) inverse and 5 (+3) forward transforms.
+Evolution to Complex Geometries, section 3.3). The advection of a scalar
+(temperature, each passive tracer) is ``-div(u s)``. Per evaluation: 3 inverse
+and 5 forward transforms, plus 1 inverse and 3 forward per advected scalar.
 
 The steps, in order: frame to Cartesian (:meth:`PseudoSpectralTendency.to_cartesian`),
 the products on the grid (:meth:`~PseudoSpectralTendency.products`), the
@@ -49,12 +50,15 @@ class PseudoSpectralTendency:
         self.advection = advection
         self.has_T = "T" in self.fields
         self.with_T = self.has_T and advection is not None and advection.with_temperature
-        n_products = product_fields(self.with_T)
+        #: state indices of the advected scalars: T (if advected), then each tracer
+        self.scalars = ((self.fields.index("T"),) if self.with_T else ()) + (
+            tuple(self.fields.index(f) for f in advection.tracers) if advection else ())
+        n_products = product_fields(len(self.scalars))
         nx, ny, nz = grid.physical_shape
         self.blocks = advection is not None and choose_product_pass(
             product_pass, n_products * nx * ny * nz * 8 * transform.comm.ranks_on_node()) \
             == "blocks"
-        inputs = 4 if self.with_T else 3
+        inputs = 3 + len(self.scalars)
         outputs = n_products if advection is not None else 0
         if self.blocks:
             # the velocity made and the advection assembled by chunks of rows:
@@ -124,6 +128,11 @@ class PseudoSpectralTendency:
 
     def physical_fields(self, y: np.ndarray):
         """New arrays ``(u, v, w, T or None)``: state ``y`` on the grid."""
+        return self.physical_of(y)
+
+    def physical_of(self, y: np.ndarray, tracers=()):
+        """New arrays ``(u, v, w, T or None, *tracers)``: the velocity of state ``y`` on
+        the grid, ``T`` (None in the low-Peclet model), then the named tracer fields."""
         fft, P = self.fft, self.P
         kernels.velocity(y[0], y[1], self.basis, self.band, P[0], P[1], P[2])
         # the inverse FFT destroys its input: transform a copy, so that the work
@@ -134,28 +143,34 @@ class PseudoSpectralTendency:
             np.copyto(scratch, P[comp])
             fields.append(fft.inverse(scratch, fft.empty_physical()))
         T = None
-        if self.has_T:
-            np.copyto(scratch, y[2])
-            T = fft.inverse(scratch, fft.empty_physical())
-        return (*fields, T)
+        extra = []
+        for name in (("T",) if self.has_T else ()) + tuple(tracers):
+            np.copyto(scratch, y[self.fields.index(name)])
+            field = fft.inverse(scratch, fft.empty_physical())
+            if name == "T":
+                T = field
+            else:
+                extra.append(field)
+        return (*fields, T, *extra)
 
     # ------------------------------------------------------------ the physics
-    def to_cartesian(self, y, u, v, w, T) -> None:
-        """Spectral ``u, v, w`` of the frame amplitudes of ``y`` (and ``T``, unless None)."""
+    def to_cartesian(self, y, u, v, w, *scalars) -> None:
+        """Spectral ``u, v, w`` of the frame amplitudes of ``y``, and the advected scalars."""
         kernels.velocity(y[0], y[1], self.basis, self.band, u, v, w)
-        if T is not None:
-            np.copyto(T, y[2])
+        for spec, i in zip(scalars, self.scalars):
+            np.copyto(spec, y[i])
 
     def to_cartesian_rows(self, y, chunks, lo, hi) -> None:
         """:meth:`to_cartesian` of the local ky rows ``lo:hi`` into ``chunks``
         (``(nx, hi - lo, nz_kept)``; compiled kernels only)."""
         kernels.velocity_rows(y[0], y[1], self.basis, self.band, *chunks[:3], lo, hi)
-        if self.with_T:
-            np.copyto(chunks[3], y[2][:, lo:hi, :self.grid.nz_kept])
+        for chunk, i in zip(chunks[3:], self.scalars):
+            np.copyto(chunk, y[i][:, lo:hi, :self.grid.nz_kept])
 
     def products(self, fields) -> None:
-        """On the grid, in place: ``fields = [u, v, w(, T), ...]`` in, the products out
-        in the order of :meth:`assemble_advection` (and the speed limits, if wanted)."""
+        """On the grid, in place: ``fields = [u, v, w, s_1..s_n, ...]`` in (the advected
+        scalars), the products out in the order of :meth:`assemble_advection` (and the
+        speed limits, if wanted)."""
         u, v, w = fields[0], fields[1], fields[2]
         if self.want_speed:
             # the field past the inputs is free until the products are made
@@ -167,38 +182,41 @@ class PseudoSpectralTendency:
                 self._speed2 = speed2
         if self.advection is None:
             return
-        if self.with_T:
-            # uT, vT into fields 4, 5; wT over T
-            kernels.scalar_fluxes(u, v, w, fields[3], fields[4], fields[5])
-            uv, uu_ww = fields[6], fields[7]
-        else:
-            uv, uu_ww = fields[3], fields[4]
+        n = len(self.scalars)
+        for i in range(n):
+            # u s, v s into the fields past the scalars; w s over s
+            kernels.scalar_fluxes(u, v, w, fields[3 + i], fields[3 + n + 2 * i],
+                                  fields[4 + n + 2 * i])
+        uv, uu_ww = fields[3 + 3 * n], fields[4 + 3 * n]
         # u <- uw, v <- vv - ww, w <- vw
         kernels.stresses(u, v, w, uv, uu_ww)
 
     def _in_order(self, P):
-        """``(stresses, fluxes)`` from the transforms of :meth:`products`' outputs:
-        ``uu-ww, vv-ww, uv, uw, vw`` and ``uT, vT, wT`` (None without T advection)."""
-        if self.with_T:
-            # P = [uw, vv-ww, vw, wT, uT, vT, uv, uu-ww]
-            return (P[7], P[1], P[6], P[0], P[2]), (P[4], P[5], P[3])
-        # P = [uw, vv-ww, vw, uv, uu-ww]
-        return (P[4], P[1], P[3], P[0], P[2]), None
+        """``(stresses, scalars)`` from the transforms of :meth:`products`' outputs:
+        ``uu-ww, vv-ww, uv, uw, vw``, and per advected scalar ``((us, vs, ws), index)``.
+
+        ``P = [uw, vv-ww, vw, ws_1..ws_n, us_1, vs_1, .., us_n, vs_n, uv, uu-ww]``.
+        """
+        n = len(self.scalars)
+        stresses = (P[4 + 3 * n], P[1], P[3 + 3 * n], P[0], P[2])
+        scalars = [((P[3 + n + 2 * i], P[4 + n + 2 * i], P[3 + i]), index)
+                   for i, index in enumerate(self.scalars)]
+        return stresses, scalars
 
     def assemble_advection(self, P, out) -> None:
         """``out`` (all of it) from the transformed products ``P`` of :meth:`products`."""
-        stresses, fluxes = self._in_order(P)
-        if fluxes is not None:
+        stresses, scalars = self._in_order(P)
+        for fluxes, index in scalars:
             kernels.scalar_advection(fluxes, self.mask, self.scale, self.band, self.kvec,
-                                     out[2])
+                                     out[index])
         kernels.momentum_advection(stresses, self.mask, self.scale, self.band, self.kvec,
                                    self.basis, out)
 
     def assemble_advection_rows(self, chunks, out, lo, hi) -> None:
         """:meth:`assemble_advection` of the local ky rows ``lo:hi`` from their transformed
         products (``(nx, hi - lo, nz_kept)`` chunks; compiled kernels only)."""
-        stresses, fluxes = self._in_order(chunks)
-        kernels.advection_rows(stresses, fluxes, self.scale, self.band, self.kvec, self.basis,
+        stresses, scalars = self._in_order(chunks)
+        kernels.advection_rows(stresses, scalars, self.scale, self.band, self.kvec, self.basis,
                                out, lo, hi)
 
     def __call__(self, y: np.ndarray, t: float, out: np.ndarray) -> np.ndarray:

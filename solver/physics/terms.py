@@ -17,6 +17,8 @@ wavenumber and stores no coefficient array.
 * background gradient (``-w`` in the T equation): ``L[T,p] = +alpha``
 * quasi-static buoyancy ``BPe lap^{-1}(w) e_z``: ``L[p,p] = -BPe alpha^2/|k|^2``
   (``= -BPe kh^2/|k|^4``, the low-Peclet damping)
+* tracer diffusion:     ``L[c,c] = -|k|^2/Pe_c``
+* tracer mean gradient (``-G w`` in the tracer equation): ``L[c,p] = +G alpha``
 """
 from __future__ import annotations
 
@@ -65,6 +67,32 @@ class BackgroundStratification:
 
 
 @dataclass(frozen=True)
+class TracerDiffusion:
+    """Diffusion ``(1/Pe_c) lap c`` of the passive tracer in ``field`` (docs/equations.md#tracers)."""
+
+    field: str
+    Pe: float
+
+    def linear(self):
+        return {(self.field, self.field): [(-1.0 / self.Pe, 1, 0)]}
+
+
+@dataclass(frozen=True)
+class TracerMeanGradient:
+    """Advection of the tracer's imposed mean gradient: ``-G w`` in its equation.
+
+    The tracer never acts on the flow, so the coupling is one way (``L[p, c] = 0``)
+    and the implicit solve takes the tracer after the flow.
+    """
+
+    field: str
+    G: float
+
+    def linear(self):
+        return {(self.field, "p"): [(self.G, 0, 1)]}
+
+
+@dataclass(frozen=True)
 class QuasiStaticBuoyancy:
     """Low-Peclet buoyancy ``BPe lap^{-1}(w) e_z`` (zero on k = 0), projected."""
 
@@ -88,9 +116,11 @@ def quasi_static(p: np.ndarray, factor: float, basis, grid) -> np.ndarray:
 
 @dataclass(frozen=True)
 class Advection:
-    """``-(u.grad)u`` and, when the model has T, ``-u.grad T`` (pseudo-spectral)."""
+    """``-(u.grad)u`` and, when the model has T, ``-u.grad T`` (pseudo-spectral);
+    ``-u.grad c`` of every tracer field in ``tracers``."""
 
     with_temperature: bool
+    tracers: tuple = ()
 
 
 @dataclass(frozen=True)

@@ -89,7 +89,9 @@ class TimeSeriesOutput(Output):
         self.budget = diag.BudgetCheck()
         if sim.comm.rank == 0:
             self.writer = TimeSeriesWriter(os.path.join(out_dir, SERIES_FILE), sim.case,
-                                           diag.SERIES_NAMES, append=append)
+                                           diag.SERIES_NAMES
+                                           + diag.tracer_series_names(sim.case.tracers),
+                                           append=append)
 
     def due(self, sim):
         return self.cadence(sim)
@@ -97,7 +99,9 @@ class TimeSeriesOutput(Output):
     def write(self, sim):
         view = step_view(sim)
         d = diag.compute(view)
+        previous = self.budget.previous
         d["budget_residual"] = self.budget(d)
+        self.budget.tracers(d, previous, view.case.tracers)
         if self.writer is not None:
             self.writer.append(d)
         self.last, self.last_step = d, view.step_count

@@ -5,6 +5,8 @@ What may change between the checkpoint's case and the new one:
 * parameters (``Re``, ``B``, ``Pe``/``Pr``, ``BPe``), forcing (``kf``,
   amplitude), stop conditions, time-step settings, outputs and compute
   settings, the name: taken as given;
+* the tracers: one new in the case starts from its initial state, one missing
+  from the case is dropped (both recorded in the restart event)
 * the model: boussinesq -> lowpe drops ``T``; lowpe -> boussinesq sets ``T``
   from the quasi-static balance of docs/equations.md#models,
   ``T = Pe lap^{-1} w``, i.e. ``T_k = Pe alpha p_k / |k|^2`` with
@@ -44,6 +46,7 @@ from shearmix.solver.files.fileheader import history_of, now
 from shearmix.solver.files.series import drop_segments_from, flat_keys
 from shearmix.solver.files.slabfile import agree
 from shearmix.solver.physics.terms import quasi_static
+from shearmix.solver.physics.initial import apply_tracer_initial
 from shearmix.solver.version import __version__
 
 
@@ -138,7 +141,7 @@ def apply(sim, path: str, checked: dict) -> None:
     column fails its checksum; ``sim`` is then unusable but nothing is written."""
     header, diff = checked["header"], checked["changes"]
     stored = header["fields"]
-    wanted = [f for f in ("a", "p", "T") if f in sim.fields and f in stored]
+    wanted = [f for f in sim.fields if f in stored]
     error, data = None, None
     try:
         data = read_fields(path, header, sim.grid, wanted)
@@ -158,6 +161,12 @@ def apply(sim, path: str, checked: dict) -> None:
             sim.state[i] = quasi_static(sim.state[sim.fields.index("p")], sim.case.Pe,
                                         sim.basis, sim.grid)  # T = Pe lap^-1 w
             sim.state[i] *= sim.grid.dealias
+    added = []
+    for tracer in sim.case.tracers:
+        if tracer.field not in data:  # a tracer new at this restart starts from its initial state
+            apply_tracer_initial(sim, tracer)
+            added.append(tracer.name)
+    removed = [f[2:] for f in stored if f.startswith("c.") and f not in sim.fields]
     sim.t = float(header["t"])
     sim.step_count = int(header["step"])
     if "time.dt" in diff:
@@ -168,7 +177,8 @@ def apply(sim, path: str, checked: dict) -> None:
         "event": "restart", "t": sim.t, "step": sim.step_count,
         "from": os.path.abspath(path), "ranks_before": int(header.get("ranks", 0)),
         "ranks": int(sim.comm.size), "version_before": header.get("version"),
-        "version": __version__, "date": now(), "changes": diff}]
+        "version": __version__, "date": now(), "changes": diff,
+        "tracers_added": added, "tracers_removed": removed}]
     history_of(sim)
 
 

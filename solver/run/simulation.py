@@ -30,7 +30,7 @@ from shearmix.solver.grid import Grid
 from shearmix.solver.physics import diagnostics as diag
 from shearmix.solver.physics.basis import CrayaHerring
 from shearmix.solver.physics.basis import vectors as frame_vectors
-from shearmix.solver.physics.initial import apply_initial
+from shearmix.solver.physics.initial import apply_initial, apply_tracer_initial
 from shearmix.solver.physics.models import Model, model_for
 from shearmix.solver.physics.tendency import PseudoSpectralTendency
 from shearmix.solver.run import rundir
@@ -149,6 +149,8 @@ class Simulation:
             # the product buffers hold nothing between tendency evaluations:
             # lent as work arrays, so the initial state makes no full-size temporaries
             apply_initial(self, work=self.tendency.P)
+            for tracer in case.tracers:
+                apply_tracer_initial(self, tracer)
 
     # ------------------------------------------------------------ state in and out
     def set_physical(self, u, v, w, T=None) -> None:
@@ -178,6 +180,16 @@ class Simulation:
                 nl.dealias_normalise(self.state[2])
                 self.state[2] *= self.basis.nonzero
 
+    def set_scalar_physical(self, name: str, field) -> None:
+        """Set the scalar state field ``name`` (``T`` or a tracer's ``c.NAME``) from its
+        local physical slab (dealiased; zero mean, which the equations do not carry)."""
+        fft, nl = self.fft, self.tendency
+        i = self.fields.index(name)
+        np.copyto(nl.product, field)
+        fft.forward(nl.product, self.state[i])
+        nl.dealias_normalise(self.state[i])
+        self.state[i] *= self.basis.nonzero
+
     def physical(self):
         """Local physical slabs ``(u, v, w, T or None)`` of the current state (copies)."""
         return self.tendency.physical_fields(self.state)
@@ -196,7 +208,7 @@ class Simulation:
                         grid=self.grid, comm=self.comm,
                         basis=self.basis, fields=self.fields, params=self.params,
                         forcing=self.tendency.forcing, case=self.case,
-                        to_physical=self.tendency.physical_fields, inverse=self._inverse)
+                        to_physical=self.tendency.physical_of, inverse=self._inverse)
 
     def add_mode(self, nx: int, ny: int, nz: int, component: str, amplitude: float) -> None:
         """Add ``amplitude * e cos(k.x)`` with ``e`` the frame vector of ``component`` at k."""

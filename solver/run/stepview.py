@@ -51,7 +51,8 @@ class StepView:
     forcing: Any
     #: the case, for the provenance every file records
     case: Any
-    #: ``state -> (u, v, w, T or None)`` new physical slabs (collective)
+    #: ``(state, tracer fields=()) -> (u, v, w, T or None, *tracers)`` new physical
+    #: slabs (collective)
     to_physical: Callable
     #: ``spectral slab -> new physical slab`` (collective; the input is kept)
     inverse: Callable
