@@ -179,7 +179,7 @@ def check_trip_leaves_unused_rows(comm, grid, fft, phys, trip):
     return change
 
 
-def run_steps(model, nsteps, out, paths):
+def run_steps(model, nsteps, out, paths, tracers=False):
     """One simulation per path (``PASS/TRANSPOSE/KERNELS``), in turn in this job;
     saves ``state_<path>``, ``t_<path>`` and what each simulation really used
     (``used_<path>``: blocks or whole, shared, alltoall or single, numba or numpy)."""
@@ -194,6 +194,8 @@ def run_steps(model, nsteps, out, paths):
             "grid": {"Nx": 16, "Ny": 16, "Nz": 8},
             "time": {"t_end": 10.0, "dt": 0.02, "cfl": 0.5},
             "initial": {"kind": "laminar_noise", "amplitude": 0.2, "seed": 11},
+            **({"tracers": {"s1": {"Sc": 1.0, "initial": {"kind": "mode", "nx": 1, "nz": 1}},
+                            "s10": {"Pe": 800.0, "gradient": 0.5}}} if tracers else {}),
             "compute": {"fftw_effort": "estimate", "wisdom": "", "product_pass": product_pass,
                         "transpose": transpose, "kernels": backend}})
         sim = Simulation(case, comm)
@@ -214,4 +216,5 @@ if __name__ == "__main__":
     if sys.argv[1] == "fft":
         check_fft(sys.argv[2], sys.argv[3])
     else:
-        run_steps(sys.argv[2], int(sys.argv[3]), sys.argv[4], sys.argv[5])
+        run_steps(sys.argv[2], int(sys.argv[3]), sys.argv[4], sys.argv[5],
+                  tracers=len(sys.argv) > 6 and sys.argv[6] == "tracers")
