@@ -32,6 +32,12 @@ MEANINGS = {
     "kmax_etaK": "kmax times the Kolmogorov scale", "Lz_turb": "vertical scale of the flow",
     "D_flux": "turbulent diffusivity -<wT>", "D_estimate": "diffusivity estimate",
     "Pe_turb": "turbulent Peclet number",
+    "Kmean": "kinetic energy of the x-mean flow", "Kfluct": "kinetic energy of the fluctuations",
+    "u_fluct_rms": "rms of u - <u>_x", "v_fluct_rms": "rms of v - <v>_x",
+    "w_fluct_rms": "rms of w - <w>_x", "isotropy_fluct": "isotropy of the fluctuations",
+    "K2d_laminar": "energy of the laminar modes", "K2d_pert": "energy of the other kz = 0 modes",
+    "K3d": "energy of the kz != 0 modes", "Lz_jets": "vertical scale of the x-mean jets",
+    "Ri_jets": "Richardson-Peclet number of the jets",
 }
 
 

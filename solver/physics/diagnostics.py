@@ -12,11 +12,12 @@ import math
 import numpy as np
 
 from shearmix.solver.compute import kernels
+from shearmix.solver.physics.flowsplit import FLOW_SPLIT_NAMES, flow_split
 
 #: quantities recorded every ``output.diagnostics_every`` steps, in order
 SERIES_NAMES = ("t", "step", "dt", "K", "Kx", "Ky", "Kz", "I", "eps", "J", "chi", "eta",
                 "u_rms", "v_rms", "w_rms", "T_rms", "b_rms", "umax", "budget_residual",
-                "kmax_etaK", "Lz_turb", "D_flux", "D_estimate", "Pe_turb")
+                "kmax_etaK", "Lz_turb", "D_flux", "D_estimate", "Pe_turb") + FLOW_SPLIT_NAMES
 
 
 def compute(view) -> dict:
@@ -69,6 +70,7 @@ def compute(view) -> dict:
     d["D_estimate"] = d["w_rms"] * d["Lz_turb"]
     d["Pe_turb"] = Pe * d["w_rms"] * d["Lz_turb"] if Pe else nan
     d["budget_residual"] = nan
+    d.update(flow_split(view, K, (tot["Kx"], tot["Ky"], tot["Kz"])))
     d.update(tracer_diagnostics(view))
     return {k: (int(v) if k == "step" else float(v)) for k, v in d.items()}
 

@@ -207,7 +207,10 @@ def run_steps(model, nsteps, out, paths, tracers=False):
         for _ in range(nsteps):
             sim.advance()
         full = gather_spectral(comm, sim.state.copy())
-        saved.update({f"state_{path}": full, f"t_{path}": sim.t, f"used_{path}": "/".join(used)})
+        diag = sim.diagnostics()  # reductions over ranks: the same numbers on any count
+        saved.update({f"state_{path}": full, f"t_{path}": sim.t, f"used_{path}": "/".join(used),
+                      f"diag_{path}": np.array([diag[k] for k in sorted(diag)]),
+                      "diag_keys": np.array(sorted(diag))})
     if comm.rank == 0:
         np.savez(out, **saved)
 

@@ -87,13 +87,21 @@ def test_same_result_on_1_2_and_4_ranks_along_every_path(tmp_path, model):
             p, t, k = path.split("/")
             want = "/".join((p, "single" if n == 1 else t, COMPILED if k == "numba" else k))
             assert str(r[f"used_{path}"]) == want
-            states[n, path] = (r[f"state_{path}"], float(r[f"t_{path}"]))
+            states[n, path] = (r[f"state_{path}"], float(r[f"t_{path}"]), r[f"diag_{path}"])
+            keys = list(r["diag_keys"])
     assert len(states) == 4 + 8 + 8
-    ref, t_ref = states[1, "whole/auto/numpy"]
+    ref, t_ref, d_ref = states[1, "whole/auto/numpy"]
     assert np.abs(ref).max() > 0.1
-    for key, (s, t) in states.items():
+    assert {"Kmean", "K2d_pert", "Lz_jets", "Ri_jets"} <= set(keys)
+    finite = np.isfinite(d_ref)
+    assert finite.sum() > 30  # everything but the budget residuals and unset Pe
+    for key, (s, t, d) in states.items():
         assert t == pytest.approx(t_ref, rel=1e-12), key
         assert np.abs(s - ref).max() / np.abs(ref).max() < 1e-12, key
+        # every reported number, including the flow split's kx = 0 plane and kz spectrum
+        assert np.array_equal(np.isfinite(d), finite), key
+        np.testing.assert_allclose(d[finite], d_ref[finite], rtol=1e-10, atol=1e-14,
+                                   err_msg=str(key))
 
 
 def test_ranks_whose_columns_are_all_dropped(tmp_path):
