@@ -20,7 +20,7 @@ SM="$VENV/bin/shearmix"
 MPI="$VENV/bin/mpiexec"
 SWEEP="$ROOT/configs/campaign/re50-bpe.yaml"
 DIR="$ROOT/runs/campaign-re50"
-WINDOW=${WINDOW:-80}
+WINDOW=${WINDOW:-100}
 PARALLEL=${PARALLEL:-2}
 FINE_MEMBER=${FINE_MEMBER:-BPe1}
 TWIN_MEMBER=${TWIN_MEMBER:-BPe10}
@@ -107,7 +107,7 @@ growth() {
     first=$(head -1 "$DIR/members.txt")
     if [ -f "$run.done" ]; then return 0; fi
     "$MPI" -n 2 "$SM" run "$DIR/cases/$first.yaml" --output "$run" --set time.t_end=6 \
-        --set output.overwrite=true > "$run.log" 2>&1
+        --set output.diagnostics_every=2 --set output.overwrite=true > "$run.log" 2>&1
     touch "$run.done"
 }
 
