@@ -8,7 +8,9 @@
 # windows  each member restarted from its last checkpoint with two tracers
 #          (Sc 1 and Sc 10) and run WINDOW more time units: the averaging window
 # extras   one member again at 128 x 64 x 64 and one in the full Boussinesq model
-#          (B = BPe/Pe), both seeded from that member's spin-up checkpoint
+#          (B = BPe/Pe), both seeded from that member's spin-up checkpoint and run
+#          EXTRA_WINDOW time units (to be compared with the member's own first
+#          EXTRA_WINDOW of its window)
 # growth   the first member's case from t = 0 to 6 (laminar flow + noise to turbulence)
 #          with the growth-phase diagnostics
 # Every stage skips what is already done, so the script can be run again after an
@@ -20,7 +22,8 @@ SM="$VENV/bin/shearmix"
 MPI="$VENV/bin/mpiexec"
 SWEEP="$ROOT/configs/campaign/re50-bpe.yaml"
 DIR="$ROOT/runs/campaign-re50"
-WINDOW=${WINDOW:-100}
+WINDOW=${WINDOW:-60}
+EXTRA_WINDOW=${EXTRA_WINDOW:-30}
 PARALLEL=${PARALLEL:-2}
 FINE_MEMBER=${FINE_MEMBER:-BPe1}
 TWIN_MEMBER=${TWIN_MEMBER:-BPe10}
@@ -83,7 +86,7 @@ extras() {
     if [ ! -f "$DIR/extras/$FINE_MEMBER-fine.done" ]; then
         "$MPI" -n 2 "$SM" run "$DIR/cases/$FINE_MEMBER.yaml" --output "$DIR/extras/$FINE_MEMBER-fine" \
             --restart "$src/spinup-end.h5" --set grid.Nx=128 --set grid.Ny=64 --set grid.Nz=64 \
-            --set time.t_end="$("$VENV/bin/python" -c "print($t0 + $WINDOW)")" "${TRACERS[@]}" \
+            --set time.t_end="$("$VENV/bin/python" -c "print($t0 + $EXTRA_WINDOW)")" "${TRACERS[@]}" \
             > "$DIR/extras/$FINE_MEMBER-fine.log" 2>&1
         touch "$DIR/extras/$FINE_MEMBER-fine.done"
     fi
@@ -96,7 +99,7 @@ extras() {
         "$MPI" -n 2 "$SM" run "$DIR/cases/$TWIN_MEMBER.yaml" --output "$DIR/extras/$TWIN_MEMBER-full" \
             --restart "$src/spinup-end.h5" --set model=boussinesq \
             --set parameters.B="$("$VENV/bin/python" -c "print($bpe / $pe)")" --set parameters.BPe=null \
-            --set time.t_end="$("$VENV/bin/python" -c "print($t0 + $WINDOW)")" "${TRACERS[@]}" \
+            --set time.t_end="$("$VENV/bin/python" -c "print($t0 + $EXTRA_WINDOW)")" "${TRACERS[@]}" \
             > "$DIR/extras/$TWIN_MEMBER-full.log" 2>&1
         touch "$DIR/extras/$TWIN_MEMBER-full.done"
     fi
