@@ -64,9 +64,11 @@ window_one() {  # member
     fi
     t0=$(cat "$run/window.start")
     t1=$("$VENV/bin/python" -c "print($t0 + $WINDOW)")
+    # done only when the run reached t1 (a stopped run exits 0 too, so check the time)
     "$SM" run "$DIR/cases/$m.yaml" --output "$run" --restart latest \
-        --set time.t_end="$t1" "${TRACERS[@]}" >> "$run/window.log" 2>&1
-    touch "$run/window.done"
+        --set time.t_end="$t1" "${TRACERS[@]}" >> "$run/window.log" 2>&1 &&
+        "$VENV/bin/python" -c "import sys; sys.exit(0 if $(last_time "$run") >= $t1 - 1e-9 else 1)" &&
+        touch "$run/window.done"
 }
 
 windows() {
