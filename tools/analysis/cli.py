@@ -7,6 +7,9 @@
                  [--confidence C] [--no-errors]
     shearmix regimes evidence SUMMARY.csv [--thresholds FILE] [--markdown]
     shearmix regimes thresholds [--thresholds FILE] [--yaml | --markdown]
+    shearmix growth RUN_DIR [--segment N] [--json FILE [--force]] [--tolerance X]
+                    [--confidence C] [--min-records N] [--min-efolds X] [--end-trim F]
+                    [--no-theory]
 
 Registered by :func:`add_arguments` on the program's subparsers; each
 subcommand's handler is stored as ``func`` and returns an exit code
@@ -21,7 +24,7 @@ import sys
 EXIT_BAD_INPUT = 2
 
 __all__ = ["add_arguments", "dispatch", "main", "cmd_summary", "cmd_fit", "cmd_evidence",
-           "cmd_thresholds"]
+           "cmd_thresholds", "cmd_growth"]
 
 _SHOWN = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flux", "D_estimate",
           "kmax_etaK", "Pe_turb", "Kmean", "Kfluct", "u_fluct_rms", "v_fluct_rms", "w_fluct_rms",
@@ -161,8 +164,81 @@ def cmd_thresholds(args):
     return 0
 
 
+def _phase_lines(p, linear, out):
+    pct = f"{100 * p.confidence:g}%"
+    print(f"  phase       t = {p.t_start:.6g} .. {p.t_end:.6g} ({p.records} records, "
+          f"{p.efolds:.3g} e-folds; largest distance from the fit {p.deviation:.2g}, "
+          f"residual lag-1 correlation {p.lag1:.2f})", file=out)
+    print(f"  rate        {p.rate:.6g} +- {p.stderr:.2g} (scatter) +- {p.ends:.2g} (ends); "
+          f"{pct} interval [{p.interval[0]:.6g}, {p.interval[1]:.6g}]", file=out)
+    if linear is not None and linear.growth > 0:
+        lo, hi = (x / linear.growth for x in p.interval)
+        print(f"  ratio       {p.rate / linear.growth:.5f} of the linear rate "
+              f"({pct} interval [{lo:.5f}, {hi:.5f}])", file=out)
+
+
+def _linear_line(mode, fam):
+    if mode is None:
+        return (f"  linear      no {fam.upper()} box mode below the energy bound and inside the "
+                "grid's band (every one decays)")
+    state = "" if mode.growth > 0 else " (stable: no such box mode grows)"
+    return (f"  linear      {mode.growth:.6g}{state}, fastest {fam.upper()} box mode i={mode.i} "
+            f"j={mode.j} l={mode.l} (kx={mode.kx:.4g}, kz={mode.kz:.4g}, ky0={mode.ky0:.4g}), "
+            f"frequency {mode.frequency:.4g}, |n| <= {mode.M}")
+
+
+def cmd_growth(args):
+    """Handler of ``growth``: the exponential phases of a run against linear theory."""
+    from shearmix.tools.analysis.growth import FAMILIES, GrowthError, GrowthOptions, analyse_run, write_json
+
+    try:
+        opts = GrowthOptions(tolerance=args.tolerance, confidence=args.confidence,
+                             min_records=args.min_records, min_efolds=args.min_efolds,
+                             end_trim=args.end_trim, segment=args.segment)
+        if args.json:
+            from shearmix.tools.stability.tables import check_writable
+            check_writable(args.json, args.force, "--json")
+        res = analyse_run(args.run_dir, opts, theory=not args.no_theory,
+                          progress=lambda m: print(f"shearmix: {m}", file=sys.stderr, flush=True))
+    except (GrowthError, ValueError, OSError) as exc:
+        return _fail(str(exc))
+    out = sys.stdout
+    where = f", segment {res['segment']} of {res['segments']}" if res["segments"] > 1 else ""
+    print(f"run {res['run']}{where}: {res['records']} records, t = {res['t_first']:.6g} .. "
+          f"{res['t_last']:.6g}", file=out)
+    print(f"  phases straight within {opts.tolerance:g} in ln(amplitude), at least "
+          f"{opts.min_records} records and {opts.min_efolds:g} e-folds; amplitude rates "
+          f"(energy grows at twice them)", file=out)
+    for fam, (key, what) in FAMILIES.items():
+        phases = res["phases"][fam]
+        print(f"{fam.upper()} family: sqrt({key}), {what}", file=out)
+        linear = res["linear"][fam]
+        if not args.no_theory:
+            print(_linear_line(linear, fam), file=out)
+        if not phases:
+            print("  phase       none found", file=out)
+            continue
+        _phase_lines(phases[0], linear, out)
+        for p in phases[1:]:
+            print(f"  also        t = {p.t_start:.6g} .. {p.t_end:.6g} ({p.records} records): rate "
+                  f"{p.rate:.6g}, {100 * p.confidence:g}% interval [{p.interval[0]:.6g}, "
+                  f"{p.interval[1]:.6g}]", file=out)
+    print(f"onset: {res['onset']}", file=out)
+    if res["verdict_3d"] is not None:
+        print(f"3D growth: {res['verdict_3d'][1]}", file=out)
+    for w in res["warnings"]:
+        print(f"  warning: {w}", file=out)
+    if args.json:
+        try:
+            write_json(res, args.json)
+        except OSError as exc:
+            return _fail(f"--json: cannot write {args.json}: {exc}")
+        print(f"wrote {args.json}", file=out)
+    return 0
+
+
 def add_arguments(subparsers):
-    """Register ``summary`` and ``fit`` on an argparse subparsers object."""
+    """Register ``summary``, ``fit``, ``regimes`` and ``growth`` on an argparse subparsers object."""
     p = subparsers.add_parser("summary", help="time averages, errors, regime and warnings of runs")
     p.add_argument("run_dirs", nargs="+", metavar="RUN_DIR", help="run folder (or its timeseries.h5)")
     p.add_argument("--start", type=float, metavar="T", help="steady-state start time (skips detection)")
@@ -203,6 +279,26 @@ def add_arguments(subparsers):
     fmt.add_argument("--yaml", action="store_true", help="as the file --thresholds reads")
     fmt.add_argument("--markdown", action="store_true", help="as the table of docs/equations.md#regimes")
     a.set_defaults(func=cmd_thresholds)
+
+    p = subparsers.add_parser("growth", help="exponential growth phases of a run against linear theory")
+    p.add_argument("run_dir", metavar="RUN_DIR", help="run folder (or its timeseries.h5)")
+    p.add_argument("--segment", type=int, default=None, metavar="N",
+                   help="segment of the series (0 the first, -1 the last, the default)")
+    p.add_argument("--json", metavar="FILE", help="write the phases, rates and linear theory as JSON")
+    p.add_argument("--force", action="store_true", help="replace an existing --json file")
+    p.add_argument("--tolerance", type=float, default=0.02, metavar="X",
+                   help="largest distance of ln(amplitude) from a line within a phase (default 0.02)")
+    p.add_argument("--confidence", type=float, default=0.95, metavar="C",
+                   help="level of the intervals (default 0.95)")
+    p.add_argument("--min-records", type=int, default=8, metavar="N",
+                   help="fewest records in a phase (default 8)")
+    p.add_argument("--min-efolds", type=float, default=1.0, metavar="X",
+                   help="least growth of ln(amplitude) over a phase (default 1)")
+    p.add_argument("--end-trim", type=float, default=0.25, metavar="F",
+                   help="share of a phase dropped at its ends for the ends uncertainty (default 0.25)")
+    p.add_argument("--no-theory", action="store_true",
+                   help="skip the eigenproblem (no linear rates, ratios or 3D verdict)")
+    p.set_defaults(func=cmd_growth)
 
 
 def dispatch(args):
