@@ -77,12 +77,13 @@ def test_phase_after_the_transient_and_before_saturation():
     assert t[p.first] > t[np.argmin(amp)]          # after the decaying transient
     assert amp[p.last] < 0.9                        # before the saturated plateau
     assert p.interval[0] <= 1.0 <= p.interval[1]
+    # the bent ends inside the default tolerance 0.02 bias the rate low (measured -2.2e-3)
     assert p.rate == pytest.approx(1.0, rel=5e-3)
     # a tighter tolerance moves the phase ends inward and the rate closer to the truth
     q = find_phases(t, e, GrowthOptions(tolerance=0.002))[0]
     assert q.first > p.first and q.last < p.last
     assert abs(q.rate - 1.0) < abs(p.rate - 1.0)
-    assert q.rate == pytest.approx(1.0, rel=1e-3)
+    assert q.rate == pytest.approx(1.0, rel=1e-3)   # measured -3.3e-4
 
 
 def test_two_growth_phases_longest_first():
@@ -205,7 +206,7 @@ def test_eigenmode_start_grows_at_the_linear_rate(tmp_path):
     res = analyse_run(tmp_path / "run")
     p = res["phases"]["2d"][0]
     rate = _linear_2d_rate()
-    assert p.rate == pytest.approx(rate, rel=1e-4)
+    assert p.rate == pytest.approx(rate, rel=1e-4)  # the tolerance
     assert p.efolds > 2.5
     assert res["linear"]["2d"].growth == pytest.approx(rate, rel=1e-9)
     assert (res["linear"]["2d"].i, res["linear"]["2d"].j) == (1, 0)
@@ -221,6 +222,6 @@ def test_noise_start_2d_family_grows_at_the_fastest_box_rate(tmp_path):
     assert Simulation(case).run(output=str(tmp_path / "run")) == 0
     res = analyse_run(tmp_path / "run", theory=False)
     p = res["phases"]["2d"][0]
-    assert p.rate == pytest.approx(_linear_2d_rate(), rel=0.02)
+    assert p.rate == pytest.approx(_linear_2d_rate(), rel=0.02)  # the tolerance
     assert 0 < p.t_start and p.t_end < res["t_last"]   # transient and saturation cut off
     assert res["phases"]["3d"] == []

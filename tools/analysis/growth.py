@@ -14,8 +14,9 @@ This property is inherited by every sub-stretch, so the maximal stretches
 are found exactly by a two-pointer sweep (:func:`straight_stretches`). The
 growth phases of a family are the maximal straight stretches that grow by at
 least ``min_efolds`` e-folds and hold at least ``min_records`` records,
-taken longest first without overlap; the principal phase is the longest
-(in time). An initial transient (decaying modes still present) and the
+taken longest first; a stretch that shares records with a longer phase
+keeps its longest part outside it (two phases meeting at a bend share the
+record at the bend). The principal phase is the longest (in time). An initial transient (decaying modes still present) and the
 onset of saturation bend ``ln A`` and so end the stretch.
 
 **Rate and its uncertainty** (:func:`fit_phase`). ``ln A = c + s t`` by
@@ -314,9 +315,20 @@ def find_phases(t, energy, options=None, family=""):
     cands.sort(key=lambda p: (-p.duration, p.t_start))
     chosen = []
     for p in cands:
-        if all(p.last < q.first or p.first > q.last for q in chosen):
-            chosen.append(p)
-    return chosen
+        # a stretch sharing records with a longer phase keeps its longest part outside it
+        free = np.ones(p.last - p.first + 1, dtype=bool)
+        for q in chosen:
+            free[max(q.first, p.first) - p.first:max(min(q.last, p.last) - p.first + 1, 0)] = False
+        if not free.all():
+            parts = np.split(np.arange(p.first, p.last + 1), np.flatnonzero(np.diff(free.astype(int))) + 1)
+            part = max((r for r in parts if free[r[0] - p.first]), key=len, default=None)
+            if part is None or part.size < opts.min_records:
+                continue
+            p = fit_phase(t, y, int(part[0]), int(part[-1]), family, opts.confidence, opts.end_trim)
+            if not (p.rate > 0 and p.efolds >= opts.min_efolds):
+                continue
+        chosen.append(p)
+    return sorted(chosen, key=lambda p: (-p.duration, p.t_start))
 
 
 # ------------------------------------------------------------------------------ the run
