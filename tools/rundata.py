@@ -181,9 +181,10 @@ class Run:
     def summary(self, **options) -> Summary:
         """:func:`shearmix.tools.analysis.summary.summarize_run` of the folder as a
         :class:`Summary`; ``options`` are :class:`SummaryOptions` fields (e.g. ``segment=0``)."""
-        from shearmix.tools.analysis.summary import AVERAGED, summarize_run
+        from shearmix.tools.analysis.summary import averaged_names, summarize_run
         row = summarize_run(self.folder, **options)
-        return Summary(values={q: row[q] for q in AVERAGED}, errors={q: row[f"{q}_err"] for q in AVERAGED},
+        names = averaged_names(row)  # the flow's quantities, then each tracer's as q.NAME
+        return Summary(values={q: row[q] for q in names}, errors={q: row[f"{q}_err"] for q in names},
                        regime=row["regime"], warnings=list(row["warnings"]), row=row)
 
 

@@ -29,6 +29,8 @@ __all__ = ["add_arguments", "dispatch", "main", "cmd_summary", "cmd_fit", "cmd_e
 _SHOWN = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flux", "D_estimate",
           "kmax_etaK", "Pe_turb", "Kmean", "Kfluct", "u_fluct_rms", "v_fluct_rms", "w_fluct_rms",
           "isotropy_fluct", "K2d_laminar", "K2d_pert", "K3d", "Lz_jets", "Ri_jets")
+#: per tracer, under its name (shearmix.tools.analysis.summary.TRACER_AVERAGED)
+TRACER_SHOWN = ("D_c", "D_chi", "c_rms", "kmax_etaB")
 
 
 def _fail(message):
@@ -70,6 +72,13 @@ def _print_row(row, out):
     for q in _SHOWN:
         if math.isfinite(row.get(q, float("nan"))):
             print(f"  {q:<11s} {_fmt(row[q], row[q + '_err'])}", file=out)
+    for n in [k.split(".", 1)[1] for k in row if k.startswith("Sc.")]:
+        print(f"  tracer {n}  (Sc {row[f'Sc.{n}']:.4g}, Pe_c {row[f'Pe_c.{n}']:.4g}, "
+              f"G {row[f'G.{n}']:.4g})", file=out)
+        for q in TRACER_SHOWN:
+            key = f"{q}.{n}"
+            if math.isfinite(row.get(key, float("nan"))):
+                print(f"    {q:<9s} {_fmt(row[key], row[key + '_err'])}", file=out)
     print(f"  eps_cv      {row['eps_cv']:.3g}   (flatness {row['eps_flatness']:.3g})", file=out)
     print(f"  flux        quiet_fraction {row['quiet_fraction']:.3g}   (flux_cv {row['flux_cv']:.3g})",
           file=out)

@@ -18,7 +18,14 @@ Steps (:func:`summarize_run`):
    shorter than ``min_correlation_times`` integrated autocorrelation times of
    some quantity, default 50, a choice; or no reliable steady start), or
    outside the low-Peclet validity (``Pe_turb`` above ``pe_turb_max``,
-   default 1, lowpe model only).
+   default 1, lowpe model only);
+5. per passive tracer ``NAME`` (docs/equations.md#tracers): the averages of
+   :data:`TRACER_AVERAGED` as ``q.NAME``, its ``Sc``, ``Pe_c`` and ``G``, and
+   warnings when it is under-resolved (``kmax_etaB.NAME`` below
+   ``kmax_etaK_min``, Batchelor 1959) or not at equilibrium (``D_c`` and
+   ``D_chi`` more than ``tracer_sigmas`` combined standard errors apart, or
+   the ``c_rms`` means of the window's halves more than ``tracer_drift_max``
+   apart, relative to their mean).
 
 ``Lz_turb`` (docs/equations.md#reported-numbers) of a spectrum is :func:`lz_turb`; of a
 physical-space velocity field, :func:`lz_turb_from_field`.
@@ -44,6 +51,9 @@ from shearmix.tools.analysis.steady import detect_steady_state
 __all__ = [
     "SummaryOptions",
     "AVERAGED",
+    "TRACER_AVERAGED",
+    "averaged_names",
+    "batchelor_factor",
     "read_timeseries",
     "summarize_run",
     "summarize_runs",
@@ -62,6 +72,11 @@ AVERAGED = ("eta", "I", "eps", "J", "u_rms", "v_rms", "w_rms", "Lz_turb", "D_flu
             # the streamwise-mean / fluctuation split (docs/equations.md#reported-numbers)
             "Kmean", "Kfluct", "u_fluct_rms", "v_fluct_rms", "w_fluct_rms", "isotropy_fluct",
             "K2d_laminar", "K2d_pert", "K3d", "Lz_jets", "Ri_jets")
+
+#: Per-tracer quantities averaged in a summary, in its columns as ``q.NAME``
+#: (docs/equations.md#tracers): the rms, the diffusivity from the flux, the one
+#: from the dissipation (the equilibrium estimate) and the resolution number.
+TRACER_AVERAGED = ("c_rms", "D_c", "D_chi", "kmax_etaB")
 
 
 @dataclass(frozen=True)
@@ -90,6 +105,13 @@ class SummaryOptions:
         Segment of the series to average (:mod:`shearmix.tools.analysis.segments`):
         ``None`` the last, a number (negative from the end), or ``'all'`` to
         average across every change (with a warning naming them).
+    tracer_sigmas : float
+        A tracer is not at equilibrium when its ``D_c`` and ``D_chi`` differ by
+        more than this many combined standard errors (2, a choice: about the
+        95% two-sided level of a normal difference).
+    tracer_drift_max : float
+        ... or when the ``c_rms`` means of the window's two halves differ by more
+        than this fraction of their mean (0.1, a choice).
     """
 
     start: float | None = None
@@ -100,6 +122,8 @@ class SummaryOptions:
     pe_turb_max: float = 1.0
     thresholds: RegimeThresholds = field(default_factory=RegimeThresholds)
     segment: int | str | None = None
+    tracer_sigmas: float = 2.0
+    tracer_drift_max: float = 0.1
 
 
 def _series_path(path):
@@ -194,6 +218,143 @@ def _dissipation_intermittency(t, eps):
     return cv, flat
 
 
+def batchelor_factor(Sc):
+    """``kmax eta_B / (kmax eta_K)``: ``Sc^(-1/2)`` for ``Sc > 1`` (the Batchelor scale
+    ``eta_B = eta_K Sc^(-1/2)``, Batchelor 1959, J. Fluid Mech. 5, 113), else 1: a
+    tracer diffusing faster than momentum has no finer scale than the flow's."""
+    return Sc ** -0.5 if Sc > 1 else 1.0
+
+
+def _tracer_spec(case, name, run_folder):
+    """The case keys of tracer ``name``: from the segment's case, else (a tracer added
+    at a restart that began no segment) from the run folder's latest ``case.yaml``."""
+    spec = (case.get("tracers") or {}).get(name) if isinstance(case.get("tracers"), dict) else None
+    if isinstance(spec, dict):
+        return spec
+    try:
+        with open(os.path.join(run_folder, "case.yaml")) as fh:
+            latest = yaml.safe_load(fh) or {}
+    except (OSError, yaml.YAMLError):
+        return {}
+    spec = (latest.get("tracers") or {}).get(name) if isinstance(latest.get("tracers"), dict) else None
+    return spec if isinstance(spec, dict) else {}
+
+
+def _tracers(data, case, run_folder, Re):
+    """``{name: {"Sc", "Pe_c", "G"}}`` of the tracers this segment recorded (a column
+    ``D_c.NAME`` with a finite record), in the case's order, then any others by name."""
+    recorded = [k.split(".", 1)[1] for k in data if k.startswith("D_c.")
+                and np.isfinite(data[k]).any()]
+    listed = list((case.get("tracers") or {}) if isinstance(case.get("tracers"), dict) else ())
+    names = [n for n in listed if n in recorded] + sorted(n for n in recorded if n not in listed)
+    out = {}
+    for n in names:
+        spec = _tracer_spec(case, n, run_folder)
+
+        def num(key, default=float("nan")):
+            try:
+                return float(spec.get(key, default))
+            except (TypeError, ValueError):
+                return float("nan")
+        Pe_c, Sc = num("Pe"), num("Sc")
+        if math.isnan(Pe_c):
+            Pe_c = Sc * Re
+        elif math.isnan(Sc):
+            Sc = Pe_c / Re
+        out[n] = {"Sc": Sc, "Pe_c": Pe_c, "G": num("gradient", 1.0)}
+    return out
+
+
+def _with_resolution(data, tracers):
+    """``data`` with each tracer's ``kmax_etaB.NAME = kmax_etaK * batchelor_factor(Sc)``."""
+    data = dict(data)
+    for n, p in tracers.items():
+        if "kmax_etaK" in data and math.isfinite(p["Sc"]):
+            data[f"kmax_etaB.{n}"] = data["kmax_etaK"] * batchelor_factor(p["Sc"])
+    return data
+
+
+def _half_means(t, x):
+    """Trapezoidal time means of ``x`` over the first and the second half of ``t``'s span."""
+    ok = np.isfinite(x)
+    t, x = t[ok], x[ok]
+    if t.size < 4:
+        return float("nan"), float("nan")
+    mid = 0.5 * (t[0] + t[-1])
+    xm = np.interp(mid, t, x)
+    lo, hi = t < mid, t > mid
+    t1, x1 = np.r_[t[lo], mid], np.r_[x[lo], xm]
+    t2, x2 = np.r_[mid, t[hi]], np.r_[xm, x[hi]]
+    return (float(np.trapezoid(x1, t1) / (mid - t[0])),
+            float(np.trapezoid(x2, t2) / (t[-1] - mid)))
+
+
+def _tracer_columns(row, tracers):
+    """Each tracer's parameters, in the row before its averages."""
+    for n, p in tracers.items():
+        row[f"Sc.{n}"], row[f"Pe_c.{n}"], row[f"G.{n}"] = p["Sc"], p["Pe_c"], p["G"]
+
+
+def _tracer_checks(row, t, data, tracers, opts, warnings):
+    """The equilibrium numbers of each tracer (columns ``D_gap_z.NAME``, the difference
+    ``D_c - D_chi`` in combined standard errors, and ``c_rms_drift.NAME``, the halves'
+    relative difference) and the tracer warnings."""
+    for n, p in tracers.items():
+        dc, dchi = row[f"D_c.{n}"], row[f"D_chi.{n}"]
+        err = math.hypot(row[f"D_c.{n}_err"], row[f"D_chi.{n}_err"])
+        row[f"D_gap_z.{n}"] = (dc - dchi) / err if err > 0 else float("nan")
+        m1, m2 = _half_means(t, data[f"c_rms.{n}"]) if f"c_rms.{n}" in data else (np.nan, np.nan)
+        mid = 0.5 * (m1 + m2)
+        row[f"c_rms_drift.{n}"] = (m2 - m1) / mid if mid > 0 else float("nan")
+        kb = row.get(f"kmax_etaB.{n}", float("nan"))
+        # for Sc <= 1 kmax_etaB is kmax_etaK: the flow's own warning says it
+        if p["Sc"] > 1 and kb < opts.kmax_etaK_min and not row["flow"]:
+            warnings.append(f"under-resolved tracer {n}: kmax*eta_B = {kb:.3g} < "
+                            f"{opts.kmax_etaK_min:g} (Sc = {p['Sc']:.3g})")
+        z = row[f"D_gap_z.{n}"]
+        if abs(z) > opts.tracer_sigmas:
+            warnings.append(f"tracer {n} not at equilibrium: D_c = {dc:.4g} +- "
+                            f"{row[f'D_c.{n}_err']:.2g} and D_chi = {dchi:.4g} +- "
+                            f"{row[f'D_chi.{n}_err']:.2g} differ by {abs(z):.3g} combined "
+                            f"standard errors (> {opts.tracer_sigmas:g})")
+        drift = row[f"c_rms_drift.{n}"]
+        if abs(drift) > opts.tracer_drift_max:
+            warnings.append(f"tracer {n} not at equilibrium: c_rms over the window's halves "
+                            f"{m1:.4g} then {m2:.4g} ({100 * drift:+.3g}%, beyond "
+                            f"{100 * opts.tracer_drift_max:g}%)")
+
+
+def averaged_names(row):
+    """The averaged quantities of a summary row: :data:`AVERAGED`, then each tracer's
+    :data:`TRACER_AVERAGED` as ``q.NAME`` (those with a column in the row)."""
+    names = list(AVERAGED)
+    tracers = [k.split(".", 1)[1] for k in row if k.startswith("Sc.")]
+    names += [f"{q}.{n}" for n in tracers for q in TRACER_AVERAGED if f"{q}.{n}" in row]
+    return names
+
+
+def _average_into(row, q, t, x, opts, fname, warnings, n_corr):
+    """``q, q_err, q_tau`` of ``x(t)`` into the row (NaN when undefined); its window
+    in correlation times into ``n_corr`` unless that is None."""
+    row[q] = row[f"{q}_err"] = row[f"{q}_tau"] = float("nan")
+    if x is None:
+        return
+    ok = np.isfinite(x)
+    if not ok.any():
+        return  # quantity not defined for this run (e.g. Pe_turb without Pe)
+    if not ok.all():
+        warnings.append(f"{q}: {np.count_nonzero(~ok)} non-finite records in the window skipped")
+    try:
+        avg = time_average(t[ok], x[ok], n_batches=opts.n_batches, name=q)
+    except ValueError as exc:
+        raise ValueError(f"{fname}: {exc}") from None
+    row[q], row[f"{q}_err"], row[f"{q}_tau"] = avg.mean, avg.sigma, avg.tau
+    if avg.tau > 0 and n_corr is not None:
+        n_corr.append(((avg.t_end - avg.t_start) / avg.tau, q))
+    if not avg.tau_reliable:
+        warnings.append(f"{q}: autocorrelation window not reached; its error bar is unreliable")
+
+
 def summarize_run(path, options=None, **overrides):
     """Summary row of one run.
 
@@ -246,9 +407,12 @@ def summarize_run(path, options=None, **overrides):
     t = data["t"]
     if t.size == 0:
         raise ValueError(f"{fname}: segment {seg.index} holds no records")
+    tracers = _tracers(data, case, os.path.dirname(os.path.abspath(fname)),
+                       _parameters({"case": case})["Re"])
+    data = _with_resolution(data, tracers)
     short = t.size < 2 * opts.n_batches
     if short:
-        return _short_row(fname, data, attrs, case, segs, seg, opts, warnings)
+        return _short_row(fname, data, attrs, case, segs, seg, opts, warnings, tracers)
     steady_in = {}
     for q in opts.steady_quantities:
         if q not in data:
@@ -278,29 +442,20 @@ def summarize_run(path, options=None, **overrides):
     if np.count_nonzero(win) < 2 * opts.n_batches:
         warnings.append(f"steady window from t = {steady.t_start:.6g} ({steady.method})")
         return _short_row(fname, {k: v[win] for k, v in data.items()}, attrs, case, segs, seg,
-                          opts, warnings)
+                          opts, warnings, tracers)
     row["t_start"] = float(t[win][0])
     row["window"] = row["t_end"] - row["t_start"]
     n_corr = []
     for q in AVERAGED:
-        row[q] = row[f"{q}_err"] = row[f"{q}_tau"] = float("nan")
-        if q not in data:
-            continue
-        x = data[q][win]
-        ok = np.isfinite(x)
-        if not ok.any():
-            continue  # quantity not defined for this run (e.g. Pe_turb without Pe)
-        if not ok.all():
-            warnings.append(f"{q}: {np.count_nonzero(~ok)} non-finite records in the window skipped")
-        try:
-            avg = time_average(t[win][ok], x[ok], n_batches=opts.n_batches, name=q)
-        except ValueError as exc:
-            raise ValueError(f"{fname}: {exc}") from None
-        row[q], row[f"{q}_err"], row[f"{q}_tau"] = avg.mean, avg.sigma, avg.tau
-        if avg.tau > 0:
-            n_corr.append(((avg.t_end - avg.t_start) / avg.tau, q))
-        if not avg.tau_reliable:
-            warnings.append(f"{q}: autocorrelation window not reached; its error bar is unreliable")
+        _average_into(row, q, t[win], data[q][win] if q in data else None, opts, fname,
+                      warnings, n_corr)
+    _tracer_columns(row, tracers)
+    for n in tracers:
+        for q in TRACER_AVERAGED:
+            key = f"{q}.{n}"
+            # kmax_etaB is kmax_etaK times a constant: its correlation time is that one's
+            _average_into(row, key, t[win], data[key][win] if key in data else None, opts,
+                          fname, warnings, None if q == "kmax_etaB" else n_corr)
     if "eps" in data:
         cv, flat = _dissipation_intermittency(t[win], data["eps"][win])
     else:
@@ -322,6 +477,7 @@ def summarize_run(path, options=None, **overrides):
     row["flow"] = flow_state(t[win], {k: v[win] for k, v in data.items()}, opts.thresholds)
     if row["kmax_etaK"] < opts.kmax_etaK_min and not row["flow"]:
         warnings.append(f"under-resolved: kmax*eta_K = {row['kmax_etaK']:.3g} < {opts.kmax_etaK_min:g}")
+    _tracer_checks(row, t[win], {k: v[win] for k, v in data.items()}, tracers, opts, warnings)
     # spectral tail over the same window, where the run wrote spectra (tools/analysis/spectral_tail.py)
     from shearmix.tools.analysis.spectral_tail import tail_ratio, tail_warning
     row["tail_ratio"] = tail_ratio(os.path.dirname(os.path.abspath(fname)), row["t_start"])
@@ -371,9 +527,10 @@ def _label(row, opts, warnings, data):
     row["warnings"] = warnings
 
 
-def _short_row(fname, data, attrs, case, segs, seg, opts, warnings):
+def _short_row(fname, data, attrs, case, segs, seg, opts, warnings, tracers=None):
     """Summary of a series too short for error bars: time means over all its
-    records, errors NaN, the shortness in ``short`` and the warnings."""
+    records, errors NaN, the shortness in ``short`` and the warnings (no tracer
+    equilibrium check: it needs the error bars)."""
     t = data["t"]
     need = 2 * opts.n_batches
     warnings.append(f"short: {t.size} records; at least {need} are needed for error bars and a "
@@ -382,7 +539,10 @@ def _short_row(fname, data, attrs, case, segs, seg, opts, warnings):
     row.update({"t_first": float(t[0]), "t_last": float(t[-1]), "t_start": float(t[0]),
                 "t_end": float(t[-1]), "window": float(t[-1] - t[0]),
                 "steady_method": "none (short)", "steady_reliable": False, "short": True})
-    for q in AVERAGED:
+    tracers = tracers or {}
+    for q in list(AVERAGED) + [f"{q}.{n}" for n in tracers for q in TRACER_AVERAGED]:
+        if q == f"{TRACER_AVERAGED[0]}.{next(iter(tracers), '')}":
+            _tracer_columns(row, tracers)  # the parameters after the flow's quantities
         row[q] = row[f"{q}_err"] = row[f"{q}_tau"] = float("nan")
         if q not in data:
             continue

@@ -57,6 +57,16 @@ QUANTITY_LABELS = {"Lz_turb": r"vertical scale $L_z$", "w_rms": r"$w_{rms}$",
                    "D_estimate": r"mixing coefficient $D$ (estimate)", "eta": r"$\eta$"}
 
 
+
+def quantity_label(q):
+    """Axis label of a summary column; a tracer's ``D_c.NAME`` / ``D_chi.NAME`` name it."""
+    base, _, tracer = q.partition(".")
+    if tracer and base in ("D_c", "D_chi"):
+        how = "from the flux" if base == "D_c" else r"from $\chi_c$"
+        return f"tracer {tracer}: $D_c$ ({how})"
+    return QUANTITY_LABELS.get(q, q)
+
+
 def steady_window(data, start=None):
     """Start of the steady window, or ``None`` when there is no reliable one.
 
@@ -305,7 +315,7 @@ def plot_scaling(rows, fits, path, quantities=("Lz_turb", "w_rms", "D_flux", "D_
         ax.set_yscale("log")
         _log_ticks(ax, "y")
         ax.set_xlabel("BPe")
-        ax.set_ylabel(QUANTITY_LABELS.get(q, q))
+        ax.set_ylabel(quantity_label(q))
     fig.suptitle(f"steady-state averages against BPe (error bars: one standard error)\n"
                  f"{_conventions(rows)}", fontsize=9)
     fig.tight_layout()

@@ -4,7 +4,8 @@ Per member the row is :func:`shearmix.tools.analysis.summary.summarize_run` (tim
 uncertainties, regime label and warnings; see docs/analysis.md) with the
 member's name and state in front; it averages the member's last segment
 (a restart that changed the case begins a new one) and says so. The fits are :func:`shearmix.tools.analysis.fits.fit_power_law`
-of ``Lz_turb``, ``w_rms``, ``D_flux`` and ``D_estimate`` against ``BPe``
+of ``Lz_turb``, ``w_rms``, ``D_flux`` and ``D_estimate`` (and, per passive tracer
+``NAME``, ``D_c.NAME`` and ``D_chi.NAME``) against ``BPe``
 (weighted by the rows' ``_err`` columns when every selected error is usable,
 unweighted otherwise), compared with :data:`shearmix.tools.analysis.fits.EXPECTED_EXPONENTS`.
 The selection can be restricted to a ``BPe`` range and to one regime label;
@@ -29,10 +30,22 @@ from shearmix.tools.analysis.fits import EXPECTED_EXPONENTS, compare_exponent, f
 from shearmix.tools.analysis.summary import SERIES_FILE, SummaryOptions, summarize_run, write_csv
 from shearmix.tools.sweeps.status import sweep_status
 
-__all__ = ["FIT_QUANTITIES", "summarize_sweep", "fit_rows", "write_fits"]
+__all__ = ["FIT_QUANTITIES", "TRACER_FIT_QUANTITIES", "fit_quantities", "summarize_sweep",
+           "fit_rows", "write_fits"]
 
 #: Quantities fitted against BPe (docs/equations.md#regimes).
 FIT_QUANTITIES = ("Lz_turb", "w_rms", "D_flux", "D_estimate")
+#: Per tracer, fitted as ``q.NAME`` beside them: its two diffusivities (docs/equations.md#tracers).
+TRACER_FIT_QUANTITIES = ("D_c", "D_chi")
+
+
+def fit_quantities(rows):
+    """:data:`FIT_QUANTITIES`, then :data:`TRACER_FIT_QUANTITIES` of every tracer some
+    row carries (a column ``Sc.NAME``), tracers in first-seen order."""
+    names = []
+    for r in rows:
+        names += [k.split(".", 1)[1] for k in r if k.startswith("Sc.") and k[3:] not in names]
+    return FIT_QUANTITIES + tuple(f"{q}.{n}" for n in names for q in TRACER_FIT_QUANTITIES)
 
 
 def _select(rows, x, x_range, regime):
@@ -176,7 +189,9 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
             + ("  [short]" if r["short"] else "")
             + (f"  [{len(r['warnings'])} warning(s)]" if r["warnings"] else ""))
     # short members have no error bars and no steady window: they stay in the table, not the fits
-    fits = fit_rows([r for r in rows_done if not r["short"]], x_range=x_range, regime=regime)
+    quantities = fit_quantities(rows_done)
+    fits = fit_rows([r for r in rows_done if not r["short"]], quantities=quantities,
+                    x_range=x_range, regime=regime)
     selection = "all runs" if x_range is None and regime is None else \
         ", ".join(s for s in (f"BPe in [{x_range[0]:g}, {x_range[1]:g}]" if x_range else "",
                               f"regime {regime}" if regime else "") if s)
@@ -199,7 +214,8 @@ def summarize_sweep(sweep, start=None, x_range=None, regime=None, thresholds=Non
     if plots:
         from shearmix.tools.plots import figures as P
         files.append(P.plot_regime_map(rows_done, os.path.join(out_dir, "regime-map.png")))
-        files.append(P.plot_scaling(rows_done, fits, os.path.join(out_dir, "scaling.png")))
+        files.append(P.plot_scaling(rows_done, fits, os.path.join(out_dir, "scaling.png"),
+                                    quantities=quantities))
     for p in files:
         log(f"  wrote {os.path.relpath(p)}")
     return {"rows": rows, "fits": fits, "skipped": skipped, "files": files}
