@@ -289,10 +289,9 @@ def _half_means(t, x):
             float(np.trapezoid(x2, t2) / (t[-1] - mid)))
 
 
-def _tracer_columns(row, tracers):
-    """Each tracer's parameters, in the row before its averages."""
-    for n, p in tracers.items():
-        row[f"Sc.{n}"], row[f"Pe_c.{n}"], row[f"G.{n}"] = p["Sc"], p["Pe_c"], p["G"]
+def _tracer_columns(row, name, p):
+    """A tracer's parameters, in the row before its averages."""
+    row[f"Sc.{name}"], row[f"Pe_c.{name}"], row[f"G.{name}"] = p["Sc"], p["Pe_c"], p["G"]
 
 
 def _tracer_checks(row, t, data, tracers, opts, warnings):
@@ -449,8 +448,8 @@ def summarize_run(path, options=None, **overrides):
     for q in AVERAGED:
         _average_into(row, q, t[win], data[q][win] if q in data else None, opts, fname,
                       warnings, n_corr)
-    _tracer_columns(row, tracers)
-    for n in tracers:
+    for n, p in tracers.items():
+        _tracer_columns(row, n, p)
         for q in TRACER_AVERAGED:
             key = f"{q}.{n}"
             # kmax_etaB is kmax_etaK times a constant: its correlation time is that one's
@@ -541,8 +540,9 @@ def _short_row(fname, data, attrs, case, segs, seg, opts, warnings, tracers=None
                 "steady_method": "none (short)", "steady_reliable": False, "short": True})
     tracers = tracers or {}
     for q in list(AVERAGED) + [f"{q}.{n}" for n in tracers for q in TRACER_AVERAGED]:
-        if q == f"{TRACER_AVERAGED[0]}.{next(iter(tracers), '')}":
-            _tracer_columns(row, tracers)  # the parameters after the flow's quantities
+        base, _, n = q.partition(".")
+        if n and base == TRACER_AVERAGED[0]:
+            _tracer_columns(row, n, tracers[n])  # each tracer's parameters before its means
         row[q] = row[f"{q}_err"] = row[f"{q}_tau"] = float("nan")
         if q not in data:
             continue
