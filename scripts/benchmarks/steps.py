@@ -1,7 +1,7 @@
 """Benchmark of the time step against its transform floor, and memory per grid point.
 
     python scripts/benchmarks/steps.py [--sizes 64 128] [--ranks 1 2] [--models lowpe boussinesq]
-                              [--steps 20] [--json FILE]
+                              [--tracers 0 1 2] [--steps 20] [--json FILE]
 
 Each (model, size, rank count) runs in its own ``mpiexec`` job so that peak
 resident memory is that run's alone. Inside the job: plans are made (with
@@ -15,7 +15,10 @@ taken in wall-clock and in CPU time (``process_time``, the slowest rank): on a
 shared machine the CPU-time ratio is the steadier figure. Memory is
 the sum over ranks of the peak resident set (``getrusage``), per grid point,
 raw and net of a 16^3 run of the same model and rank count (interpreter and
-libraries).
+libraries). ``--tracers 0 1 2`` repeats each case with that many passive tracers
+(Sc 1, 2, ...; docs/equations.md#tracers); the tracers table then gives, per case,
+the step/floor ratio beside the one without tracers (same launch order) and the
+memory each tracer adds, ``(peak(k) - peak(0)) / (k N^3)``.
 """
 from __future__ import annotations
 
@@ -31,11 +34,13 @@ import time
 from shearmix.solver.compute.options import PRODUCT_PASSES
 
 
-def _case(model: str, n: int, steps: int, threads: int = 1, product_pass: str = "auto"):
+def _case(model: str, n: int, steps: int, threads: int = 1, product_pass: str = "auto",
+          tracers: int = 0):
     from shearmix.solver.case import case_from_dict
     params = {"lowpe": {"Re": 400.0, "BPe": 1.0},
               "boussinesq": {"Re": 400.0, "B": 1.0, "Pr": 1.0}}[model]
-    return case_from_dict({
+    extra = {"tracers": {f"c{i}": {"Sc": 1.0 + i} for i in range(tracers)}} if tracers else {}
+    return case_from_dict({**extra,
         "name": f"bench-{model}-{n}", "model": model, "parameters": params,
         "grid": {"Nx": n, "Ny": n, "Nz": n},
         "box": {"Lx": "4*pi", "Ly": "2*pi", "Lz": "2*pi"},
@@ -47,7 +52,7 @@ def _case(model: str, n: int, steps: int, threads: int = 1, product_pass: str = 
 
 
 def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0,
-           product_pass: str = "auto") -> dict | None:
+           product_pass: str = "auto", tracers: int = 0) -> dict | None:
     """Measure inside one MPI job; returns the record on rank 0.
 
     ``diag_every > 0`` computes the diagnostics and appends them to a time-series
@@ -58,7 +63,7 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
     from shearmix.solver.run.simulation import Simulation
     comm = world()
     t0 = time.perf_counter()
-    sim = Simulation(_case(model, n, steps, threads, product_pass), comm)
+    sim = Simulation(_case(model, n, steps, threads, product_pass, tracers), comm)
     series = None
     if diag_every:
         import tempfile
@@ -144,6 +149,7 @@ def worker(model: str, n: int, steps: int, threads: int = 1, diag_every: int = 0
     if plain_cpu:
         extra["step_cpu_seconds_without_diagnostics"] = statistics.median(plain_cpu)
     return {**extra, "model": model, "n": n, "ranks": comm.size, "threads": threads,
+            "tracers": tracers,
             "diagnostics_every": diag_every, "step_seconds": step,
             "floor_seconds": fl, "ratio": step / fl, "step_cpu_seconds": step_cpu,
             "floor_cpu_seconds": fl_cpu, "ratio_cpu": step_cpu / fl_cpu,
@@ -186,7 +192,8 @@ def _alternating_steps(sims: dict, steps: int, comm) -> dict:
     return {kind: statistics.median(t) for kind, t in times.items()}
 
 
-def phases_worker(model: str, n: int, steps: int, product_pass: str = "auto") -> dict | None:
+def phases_worker(model: str, n: int, steps: int, product_pass: str = "auto",
+                  tracers: int = 0) -> dict | None:
     """Where a step's time goes, rank by rank: a :class:`shearmix.solver.compute.phaseclock.PhaseClock`
     on the transform laps each phase; what is left of the step (stage updates,
     implicit solves, forcing) is "rest". Milliseconds per step, mean over ``steps``."""
@@ -194,7 +201,7 @@ def phases_worker(model: str, n: int, steps: int, product_pass: str = "auto") ->
     from shearmix.solver.compute.phaseclock import PhaseClock
     from shearmix.solver.run.simulation import Simulation
     comm = world()
-    sim = Simulation(_case(model, n, steps, product_pass=product_pass), comm)
+    sim = Simulation(_case(model, n, steps, product_pass=product_pass, tracers=tracers), comm)
     sim.advance()
     sim.advance()
     clock = sim.fft.clock = PhaseClock()
@@ -212,7 +219,7 @@ def phases_worker(model: str, n: int, steps: int, product_pass: str = "auto") ->
     work = comm.gather({phase: w / steps for phase, w in clock.work.items()})
     if comm.rank != 0:
         return None
-    return {"model": model, "n": n, "ranks": comm.size, "steps": steps,
+    return {"model": model, "n": n, "ranks": comm.size, "steps": steps, "tracers": tracers,
             "product_pass": "blocks" if sim.tendency.blocks else "whole",
             "ms_per_step": per_rank, "work_per_step": work}
 
@@ -224,34 +231,40 @@ def phases_table(records: list[dict]) -> list[str]:
     names = [p for p in PHASES + ("rest", "step")
              if any(p in ms for r in records for ms in r["ms_per_step"])]
     heads, cols = [], []
+
+    def name(r):  # the model, and '+kc' with k tracers
+        return r["model"][:5] + (f"+{r['tracers']}c" if r.get("tracers") else "")
     for r in records:
         for k, ms in enumerate(r["ms_per_step"]):
-            heads.append(f"{r['model'][:5]} {r['ranks']}r" + (f"#{k}" if r["ranks"] > 1 else ""))
+            heads.append(f"{name(r)} {r['ranks']}r" + (f"#{k}" if r["ranks"] > 1 else ""))
             cols.append(ms)
-    one = {r["model"]: r["ms_per_step"][0] for r in records if r["ranks"] == 1}
-    two = {r["model"]: r["ms_per_step"] for r in records if r["ranks"] == 2}
-    ratio_heads = [f"{m[:5]} 2/1" for m in two if m in one]
-    lines = [f"{'ms per step':24s}" + "".join(f"{h:>12s}" for h in heads + ratio_heads)]
+    one = {name(r): r["ms_per_step"][0] for r in records if r["ranks"] == 1}
+    two = {name(r): r["ms_per_step"] for r in records if r["ranks"] == 2}
+    ratio_heads = [f"{m} 2/1" for m in two if m in one]
+    width = max([12] + [len(h) + 2 for h in heads + ratio_heads])
+    lines = [f"{'ms per step':24s}" + "".join(f"{h:>{width}s}" for h in heads + ratio_heads)]
     for p in names:
-        row = f"{p:24s}" + "".join(f"{c.get(p, 0.0):12.1f}" for c in cols)
+        row = f"{p:24s}" + "".join(f"{c.get(p, 0.0):{width}.1f}" for c in cols)
         for m in two:
             if m in one:
                 slowest = max(ms.get(p, 0.0) for ms in two[m])
                 base = one[m].get(p, 0.0)
                 # a phase that is next to nothing on one rank (the waits) has no ratio
-                row += (f"{slowest / base:12.2f}" if base > 0.01 * one[m]["step"]
-                        else f"{'-':>12s}")
+                row += (f"{slowest / base:{width}.2f}" if base > 0.01 * one[m]["step"]
+                        else f"{'-':>{width}s}")
         lines.append(row)
-    return lines + work_rows(records)
+    return lines + work_rows(records, width)
 
 
-def work_rows(records: list[dict]) -> list[str]:
+def work_rows(records: list[dict], width: int = 12) -> list[str]:
     """Text rows: each rank's share of the one-rank work of the counted phases
     (the round trip's transforms), in the columns of :func:`phases_table`. On
     P ranks each share should be near 1/P and the shares add up to 1: a phase
     that is slow per unit of work shows in the times, one that does too much
     work shows here. Empty when the records hold no counts."""
-    one = {r["model"]: (r.get("work_per_step") or [{}])[0] for r in records
+    def name(r):
+        return (r["model"], r.get("tracers", 0))
+    one = {name(r): (r.get("work_per_step") or [{}])[0] for r in records
            if r["ranks"] == 1}
     names = [p for p in ("x inverse", "yz inverse", "yz forward", "x forward")
              if any(p in w for w in one.values())]
@@ -261,9 +274,9 @@ def work_rows(records: list[dict]) -> list[str]:
     for p in names:
         row = f"{'  ' + p:24s}"
         for r in records:
-            base = one.get(r["model"], {}).get(p, 0)
+            base = one.get(name(r), {}).get(p, 0)
             for w in r.get("work_per_step") or [{} for _ in r["ms_per_step"]]:
-                row += f"{w.get(p, 0) / base:12.2f}" if base else f"{'-':>12s}"
+                row += f"{w.get(p, 0) / base:{width}.2f}" if base else f"{'-':>{width}s}"
         lines.append(row)
     return lines
 
@@ -274,13 +287,16 @@ def _mpiexec() -> str:
 
 
 def launch(model: str, n: int, ranks: int, steps: int, threads: int = 1,
-           diag_every: int = 0, worker: str = "--worker", product_pass: str = "auto") -> dict:
+           diag_every: int = 0, worker: str = "--worker", product_pass: str = "auto",
+           tracers: int = 0) -> dict:
     env = dict(os.environ, OMP_NUM_THREADS=str(threads))
     cmd = [_mpiexec(), "-n", str(ranks), sys.executable, os.path.abspath(__file__),
-           worker, model, str(n), str(steps), str(threads), str(diag_every), product_pass]
+           worker, model, str(n), str(steps), str(threads), str(diag_every), product_pass,
+           str(tracers)]
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if res.returncode != 0:
-        raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks failed:\n"
+        raise RuntimeError(f"benchmark job {model} {n}^3 on {ranks} ranks, {tracers} tracer(s) "
+                           "failed:\n"
                            + res.stderr[-2000:])
     return json.loads(res.stdout.strip().splitlines()[-1])
 
@@ -298,6 +314,20 @@ def combine(runs: list[dict]) -> dict:
     return out
 
 
+def _against_no_tracers(r: dict, with_k: list, without: list, k: int, n: int) -> None:
+    """Into record ``r`` (``k`` tracers): its step/floor ratio over the one without
+    tracers and the step time over that one's, each repeat paired with the launch
+    without tracers of the same repeat, and the peak memory each tracer adds per grid
+    point, ``(peak(k) - peak(0)) / (k N^3)`` (largest peaks of the repeats)."""
+    ratios = [x["ratio"] / y["ratio"] for x, y in zip(with_k, without)]
+    steps = [x["step_seconds"] / y["step_seconds"] for x, y in zip(with_k, without)]
+    r["ratio_vs_no_tracers"] = statistics.median(ratios)
+    r["ratio_vs_no_tracers_runs"] = ratios
+    r["step_vs_no_tracers"] = statistics.median(steps)
+    r["bytes_per_point_per_tracer"] = (max(x["peak_rss_bytes"] for x in with_k)
+                                       - max(y["peak_rss_bytes"] for y in without)) / (k * n ** 3)
+
+
 def machine() -> str:
     cpu = "unknown CPU"
     try:
@@ -313,18 +343,34 @@ def machine() -> str:
 
 def markdown(report: dict) -> str:
     """The performance tables of docs/performance.md from a ``--json`` report."""
+    # the tracers column only when some record has tracers (older reports have none)
+    tracers = any(r.get("tracers", 0) for r in report["records"])
     lines = [f"shearmix {report['version']} on {report['machine']}.", "",
-             "| model | grid | ranks | s/step | floor s | ratio | cpu ratio | FFTs/step "
-             "| 1st step s | B/pt net | products |",
-             "|---|---|---|---|---|---|---|---|---|---|---|"]
+             "| model | grid | ranks | " + ("tracers | " if tracers else "") + "s/step | floor s "
+             "| ratio | cpu ratio | FFTs/step | 1st step s | B/pt net | products |",
+             "|---|---|---|" + ("---|" if tracers else "") + "---|---|---|---|---|---|---|---|"]
     for r in report["records"]:
-        lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | {r['step_seconds']:.4f} "
+        lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | "
+                     + (f"{r.get('tracers', 0)} | " if tracers else "") + f"{r['step_seconds']:.4f} "
                      f"| {r['floor_seconds']:.4f} | {r['ratio']:.2f} | {r['ratio_cpu']:.2f} "
                      f"| {r['transforms_per_step']} | {r['first_step_seconds']:.2f} "
                      f"| {r['bytes_per_point_net']:.0f} "
                      f"| {r.get('product_pass', r.get('physical_pass', ''))} |")
-    one = {(r["model"], r["n"]): r for r in report["records"] if r["ranks"] == 1}
-    two = [r for r in report["records"] if r["ranks"] == 2 and (r["model"], r["n"]) in one]
+    plain = [r for r in report["records"] if not r.get("tracers", 0)]
+    one = {(r["model"], r["n"]): r for r in plain if r["ranks"] == 1}
+    two = [r for r in plain if r["ranks"] == 2 and (r["model"], r["n"]) in one]
+    with_tracers = [r for r in report["records"] if "ratio_vs_no_tracers" in r]
+    if with_tracers:
+        lines += ["", "| model | grid | ranks | tracers | step/floor | step/floor over no tracers "
+                  "| over the repeats | step time over no tracers | B/pt per tracer |",
+                  "|---|---|---|---|---|---|---|---|---|"]
+        for r in with_tracers:
+            spread = r.get("ratio_vs_no_tracers_runs", [r["ratio_vs_no_tracers"]])
+            lines.append(f"| {r['model']} | {r['n']}^3 | {r['ranks']} | {r['tracers']} "
+                         f"| {r['ratio']:.2f} | {r['ratio_vs_no_tracers']:.3f} "
+                         f"| {min(spread):.3f} - {max(spread):.3f} "
+                         f"| {r['step_vs_no_tracers']:.2f} "
+                         f"| {r['bytes_per_point_per_tracer']:.0f} |")
     if two:
         lines += ["", "| model | grid | 2-rank / 1-rank step time | over the repeats |",
                   "|---|---|---|---|"]
@@ -376,6 +422,9 @@ def main(argv=None) -> int:
     ap.add_argument("--ranks", type=int, nargs="+", default=[1, 2])
     ap.add_argument("--models", nargs="+", default=["lowpe", "boussinesq"],
                     choices=["lowpe", "boussinesq"])
+    ap.add_argument("--tracers", type=int, nargs="+", default=[0],
+                    help="passive-tracer counts of each case (e.g. 0 1 2; the tracers table "
+                         "compares each with 0 when 0 is among them)")
     ap.add_argument("--steps", type=int, default=15, help="timed steps per case (median)")
     ap.add_argument("--repeats", type=int, default=1,
                     help="launches per case, rank counts taking turns (medians over them)")
@@ -394,18 +443,20 @@ def main(argv=None) -> int:
                          "largest size (where the time goes)")
     ap.add_argument("--product-pass", choices=PRODUCT_PASSES, default="auto",
                     help="how the products are made in the timed runs (compute.product_pass)")
-    ap.add_argument("--phases-worker", nargs=6, help=argparse.SUPPRESS)
-    ap.add_argument("--worker", nargs=6, help=argparse.SUPPRESS)
-    ap.add_argument("--passes-worker", nargs=6, help=argparse.SUPPRESS)
+    ap.add_argument("--phases-worker", nargs=7, help=argparse.SUPPRESS)
+    ap.add_argument("--worker", nargs=7, help=argparse.SUPPRESS)
+    ap.add_argument("--passes-worker", nargs=7, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.markdown:
         with open(args.markdown) as fh:
             print(markdown(json.load(fh)), end="")
         return 0
     # inside an MPI job launched by launch(): one worker, its record on rank 0
-    jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]), w[5]),
+    jobs = {"worker": lambda w: worker(w[0], int(w[1]), int(w[2]), int(w[3]), int(w[4]), w[5],
+                                       int(w[6])),
             "passes_worker": lambda w: passes_worker(w[0], int(w[1]), int(w[2])),
-            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2]), w[5])}
+            "phases_worker": lambda w: phases_worker(w[0], int(w[1]), int(w[2]), w[5],
+                                                     int(w[6]))}
     for name, job in jobs.items():
         if getattr(args, name):
             rec = job(getattr(args, name))
@@ -415,36 +466,42 @@ def main(argv=None) -> int:
     from shearmix.solver.version import __version__
     records = []
     print(f"shearmix {__version__} benchmark on {machine()}")
-    print(f"{'model':11s} {'grid':>6s} {'ranks':>5s} {'s/step':>9s} {'floor s':>9s} "
+    print(f"{'model':11s} {'grid':>6s} {'ranks':>5s} {'tr':>3s} {'s/step':>9s} {'floor s':>9s} "
           f"{'ratio':>6s} {'cpu ratio':>9s} {'FFTs':>5s} {'1st step':>8s} {'B/pt raw':>9s} "
           f"{'B/pt net':>9s} products")
     for model in args.models:
         base = {ranks: launch(model, 16, ranks, 3, product_pass=args.product_pass)
                 ["peak_rss_bytes"] for ranks in args.ranks}
         for n in args.sizes:
-            # the rank counts take turns, repeat after repeat, so that a change of
-            # the machine's load falls on all of them (the machine may be shared)
-            runs = {ranks: [] for ranks in args.ranks}
+            # the rank counts and tracer counts take turns, repeat after repeat, so
+            # that a change of the machine's load falls on all of them (the machine
+            # may be shared)
+            runs = {(k, ranks): [] for k in args.tracers for ranks in args.ranks}
             for _ in range(args.repeats):
+                for k in args.tracers:
+                    for ranks in args.ranks:
+                        runs[k, ranks].append(launch(model, n, ranks, args.steps,
+                                                     product_pass=args.product_pass,
+                                                     tracers=k))
+            for k in args.tracers:
                 for ranks in args.ranks:
-                    runs[ranks].append(launch(model, n, ranks, args.steps,
-                                              product_pass=args.product_pass))
-            for ranks in args.ranks:
-                r = combine(runs[ranks])
-                r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base[ranks]) / n ** 3
-                if ranks != args.ranks[0]:
-                    # paired: each repeat's run against the first rank count's run of
-                    # the same repeat, which ran just before it
-                    pairs = [x["step_seconds"] / y["step_seconds"]
-                             for x, y in zip(runs[ranks], runs[args.ranks[0]])]
-                    r["step_vs_fewest_ranks"] = statistics.median(pairs)
-                    r["step_vs_fewest_ranks_runs"] = pairs
-                records.append(r)
-                print(f"{model:11s} {n:>4d}^3 {ranks:5d} {r['step_seconds']:9.4f} "
-                      f"{r['floor_seconds']:9.4f} {r['ratio']:6.2f} {r['ratio_cpu']:9.2f} "
-                      f"{r['transforms_per_step']:5d} {r['first_step_seconds']:8.3f} "
-                      f"{r['bytes_per_point']:9.0f} {r['bytes_per_point_net']:9.0f} "
-                      f"{r['product_pass']}", flush=True)
+                    r = combine(runs[k, ranks])
+                    r["bytes_per_point_net"] = (r["peak_rss_bytes"] - base[ranks]) / n ** 3
+                    if ranks != args.ranks[0]:
+                        # paired: each repeat's run against the first rank count's run of
+                        # the same repeat, which ran just before it
+                        pairs = [x["step_seconds"] / y["step_seconds"]
+                                 for x, y in zip(runs[k, ranks], runs[k, args.ranks[0]])]
+                        r["step_vs_fewest_ranks"] = statistics.median(pairs)
+                        r["step_vs_fewest_ranks_runs"] = pairs
+                    if k and 0 in args.tracers:
+                        _against_no_tracers(r, runs[k, ranks], runs[0, ranks], k, n)
+                    records.append(r)
+                    print(f"{model:11s} {n:>4d}^3 {ranks:5d} {k:3d} {r['step_seconds']:9.4f} "
+                          f"{r['floor_seconds']:9.4f} {r['ratio']:6.2f} {r['ratio_cpu']:9.2f} "
+                          f"{r['transforms_per_step']:5d} {r['first_step_seconds']:8.3f} "
+                          f"{r['bytes_per_point']:9.0f} {r['bytes_per_point_net']:9.0f} "
+                          f"{r['product_pass']}", flush=True)
     extras = {}
     big = max(args.sizes)
     if args.diagnostics:
@@ -482,11 +539,12 @@ def main(argv=None) -> int:
               "'rest' is the stage updates and implicit solves):")
         recs = []
         for model in args.models:
-            for ranks in args.ranks:
-                r = launch(model, n, ranks, args.steps, worker="--phases-worker",
-                           product_pass=args.product_pass)
-                extras[f"phases_{model}_{ranks}"] = r
-                recs.append(r)
+            for k in args.tracers:
+                for ranks in args.ranks:
+                    r = launch(model, n, ranks, args.steps, worker="--phases-worker",
+                               product_pass=args.product_pass, tracers=k)
+                    extras[f"phases_{model}_{ranks}" + (f"_{k}tracers" if k else "")] = r
+                    recs.append(r)
         print("\n".join(phases_table(recs)))
     if args.json:
         with open(args.json, "w") as fh:

@@ -509,8 +509,53 @@ def _stage_pair_loop(X1, X2, Y1, Y2, Z1, Z2, M11, M12, M21, M22, keepx, keepy, n
                     y2[e] = complex((m11 * r2r - m21 * r1r) * inv, (m11 * r2i - m21 * r1i) * inv)
 
 
+def _follower_rhs_loop(X, Y, Z, YL, TF, TL, cf, cl, keepx, keepy, nkz, hb, hex_, him, last):
+    # a follower before its leader's solve, as stage_update_numpy's rows of it:
+    # Ly = L_ff y + L_fl y_lead (L_ff = cf TF, L_fl = cl TL), x += hb (z + Ly), then
+    # unless last y <- x + hex z + him Ly (solved once the leader is, below)
+    nx, ny = X.shape[0], X.shape[1]
+    for i in range(nx):
+        if not keepx[i]:
+            continue
+        for j in range(ny):
+            if not keepy[j]:
+                continue
+            x_, y_, z_, yl_, tf, tl = X[i, j], Y[i, j], Z[i, j], YL[i, j], TF[i, j], TL[i, j]
+            for e in range(nkz):
+                lf = cf * tf[e]
+                ll = cl * tl[e]
+                lyr = lf * y_[e].real + ll * yl_[e].real
+                lyi = lf * y_[e].imag + ll * yl_[e].imag
+                zr = z_[e].real
+                zi = z_[e].imag
+                xr = x_[e].real + hb * (zr + lyr)
+                xi = x_[e].imag + hb * (zi + lyi)
+                x_[e] = complex(xr, xi)
+                if not last:
+                    y_[e] = complex(xr + hex_ * zr + him * lyr, xi + hex_ * zi + him * lyi)
+
+
+def _follower_solve_loop(Y, YL, TF, TL, cf, cl, keepx, keepy, nkz, h):
+    # y <- (y + h L_fl y_lead) / (1 - h L_ff), the leader already solved
+    nx, ny = Y.shape[0], Y.shape[1]
+    for i in range(nx):
+        if not keepx[i]:
+            continue
+        for j in range(ny):
+            if not keepy[j]:
+                continue
+            y_, yl_, tf, tl = Y[i, j], YL[i, j], TF[i, j], TL[i, j]
+            for e in range(nkz):
+                a = h * (cl * tl[e])
+                d = 1.0 / (1.0 - h * (cf * tf[e]))
+                y_[e] = complex((y_[e].real + a * yl_[e].real) * d,
+                                (y_[e].imag + a * yl_[e].imag) * d)
+
+
 _stage_scalar_nb = _jit(_stage_scalar_loop)
 _stage_pair_nb = _jit(_stage_pair_loop)
+_follower_rhs_nb = _jit(_follower_rhs_loop)
+_follower_solve_nb = _jit(_follower_solve_loop)
 
 
 def solve_pair(m11, m12, m21, m22, y1, y2) -> None:
@@ -569,9 +614,15 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
         return operator.flat_entry(r, c).reshape(shape)
 
     followers = getattr(operator, "followers", ())
-    if followers:
-        # a follower's L y needs its leader's state before the leader's solve;
-        # the same operations as stage_update_numpy, on the followers' rows
+    fused = operator.follower_tables() if followers else None
+    if fused:
+        # a follower's L y needs its leader's state before the leader's solve
+        for f, lead, cf, tf, cl, tl in fused:
+            _follower_rhs_nb(x[f], y[f], z[f], y[lead], tf.reshape(shape), tl.reshape(shape),
+                             cf, cl, *band, hb, hex_, him, last)
+    elif followers:
+        # followers the tables cannot describe: the same operations as
+        # stage_update_numpy, on the followers' rows
         rows = [f for f, _ in followers]
         operator.apply_followers(y)
         for f in rows:
@@ -591,7 +642,11 @@ def stage_update(operator, x, y, z, hb, hex_, him, haii, last):
             _stage_pair_nb(x[f], x[h], y[f], y[h], z[f], z[h],
                            table(f, f), table(f, h), table(h, f), table(h, h),
                            *band, hb, hex_, him, haii, last)
-    if followers and not last:
+    if fused and not last:
+        for f, lead, cf, tf, cl, tl in fused:
+            _follower_solve_nb(y[f], y[lead], tf.reshape(shape), tl.reshape(shape), cf, cl,
+                               *band, haii)
+    elif followers and not last:
         operator.solve_followers(y, haii)
 
 
@@ -651,3 +706,6 @@ def warm_up() -> None:
                          0.1, last)
         _stage_pair_nb(small, small.copy(), small.copy(), small.copy(), small.copy(),
                        small.copy(), r, r, r, r, keep, keep, 2, 0.1, 0.1, 0.1, 0.1, last)
+        _follower_rhs_nb(small, small.copy(), small.copy(), small.copy(), r, r, 0.1, 0.1,
+                         keep, keep, 2, 0.1, 0.1, 0.1, last)
+    _follower_solve_nb(small, small.copy(), r, r, 0.1, 0.1, keep, keep, 2, 0.1)

@@ -88,7 +88,10 @@ class LinearOperator:
 
         Entries with the same monomials share one array.
         """
-        key = tuple(self.monomials.get((r, c), []))
+        return self._flat(tuple(self.monomials.get((r, c), [])))
+
+    def _flat(self, key) -> np.ndarray:
+        """The contiguous 1-D table of monomials ``key`` over the slab (shared by key)."""
         if key not in self._tables:
             shape = self.grid.spectral_shape
             arr = np.zeros(shape) if not key else np.array(
@@ -97,16 +100,37 @@ class LinearOperator:
             self._tables[key] = arr.reshape(-1)
         return self._tables[key]
 
+    def follower_tables(self):
+        """For the compiled stage update: per follower ``(f, lead, c_ff, T_ff, c_fl, T_fl)``
+        with ``L[f, f] = c_ff T_ff`` and ``L[f, lead] = c_fl T_fl``, where each ``T`` is
+        the shared table of one monomial ``|k|^(2m) alpha^n`` (:meth:`_flat`), so that
+        tracers add no coefficient arrays: a tracer's two entries are the tables of
+        ``|k|^2`` and ``alpha`` times its own ``-1/Pe_c`` and ``G``. For those (one
+        factor of each monomial is exactly 1) ``c T`` equals :meth:`entry` bit for
+        bit. None when some follower entry is not a single monomial."""
+        out = []
+        for f, lead in self.followers:
+            own, cross = self.monomials.get((f, f), []), self.monomials[(f, lead)]
+            if len(own) > 1 or len(cross) != 1:
+                return None
+            (c_ff, m_ff, n_ff), = own or [(0.0, 0, 0)]
+            (c_fl, m_fl, n_fl), = cross
+            out.append((f, lead, float(c_ff), self._flat(((1.0, m_ff, n_ff),)),
+                        float(c_fl), self._flat(((1.0, m_fl, n_fl),))))
+        return out
+
     def prepare(self) -> None:
-        """Evaluate every coefficient array now (before a run's large arrays exist, so that
-        the temporaries of the evaluation do not add to the peak memory)."""
+        """Evaluate every coefficient array the compiled stage update reads now (before a
+        run's large arrays exist, so that the temporaries of the evaluation do not add
+        to the peak memory)."""
         for block in self.blocks:
             for r in block:
                 for c in block:
                     self.flat_entry(r, c)
-        for f, lead in self.followers:
-            self.entry(f, f)
-            self.entry(f, lead)
+        if self.follower_tables() is None:
+            for f, lead in self.followers:
+                self.entry(f, f)
+                self.entry(f, lead)
 
     def apply_followers(self, y: np.ndarray) -> None:
         """In place, the followers' rows of ``y <- L y`` (before the leaders change)."""
