@@ -12,24 +12,28 @@ from shearmix.solver.grid import allowed_rank_counts, dealias_cutoff
 LIBRARY_BYTES = 250 * 2 ** 20
 
 
-def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float:
+def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False, tracers: int = 0) -> float:
     """Estimated resident bytes per grid point of the engine's arrays (all ranks together).
 
     A complex half-spectrum array costs 8 bytes per grid point, a real physical
     array 8, a real spectral array 4. Counted: the three stepper registers
-    (solution, stage, tendency) of ``nfields`` spectral fields; the implicit
-    coefficient arrays (2 for the low-Peclet model, 4 for the full one); the
-    transform's physical planning buffer; one spectral array per product
-    field (5, or 8 with temperature). With whole arrays (``blocks`` False):
-    as many physical arrays (one of them the planning buffer) and, on several
-    ranks, the two shared transpose arrays. Block-wise: on several ranks, one
-    shared array per product field (docs/performance.md compares this count
+    (solution, stage, tendency) of the ``nfields`` flow fields and of each of the
+    ``tracers`` passive tracers; the implicit coefficient arrays (2 for the
+    low-Peclet model, 4 for the full one, and with tracers the ``|k|^2`` and
+    ``alpha`` tables all of them share); the transform's physical planning
+    buffer; one spectral array per product field (5, plus 3 per advected scalar:
+    temperature in the full model, each tracer). With whole arrays (``blocks``
+    False): as many physical arrays (one of them the planning buffer) and, on
+    several ranks, the two shared transpose arrays. Block-wise: on several ranks,
+    one shared array per product field (docs/performance.md compares this count
     with measured figures).
     """
     spectral, physical, real_spectral = 8.0, 8.0, 4.0
     full = nfields == 3
-    total = 3 * nfields * spectral + (4 if full else 2) * real_spectral + physical
-    products = product_fields(full)
+    total = 3 * (nfields + tracers) * spectral + (4 if full else 2) * real_spectral + physical
+    if tracers:
+        total += 2 * real_spectral  # the shared tables of the compiled follower update
+    products = product_fields(int(full) + tracers)
     total += products * spectral
     if blocks:
         total += products * spectral if ranks > 1 else 0
@@ -37,6 +41,25 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False) -> float
         total += (products - 1) * physical
         total += 2 * spectral if ranks > 1 else 0
     return total
+
+
+def tracer_lines(case: Case) -> list:
+    """One line per passive tracer of the case: its name, ``Pe_c``, ``Sc``, ``G`` and
+    initial state (docs/equations.md#tracers)."""
+    out = []
+    for tr in case.tracers:
+        ini = dict(tr.initial)
+        kind = ini.get("kind", "zero")
+        if kind == "mode":
+            start = (f"mode ({ini.get('nx', 0)}, {ini.get('ny', 0)}, {ini.get('nz', 1)}), "
+                     f"amplitude {ini.get('amplitude', 0.1):g}")
+        elif kind == "file":
+            start = f"file {ini.get('path')} x {ini.get('amplitude', 0.1):g}"
+        else:
+            start = kind
+        out.append(f"{tr.name}: Pe_c {tr.Pe:.6g}, Sc {tr.Pe / case.Re:.6g}, G {tr.G:.6g}, "
+                   f"initial {start}")
+    return out
 
 
 def derived(case: Case, ranks: int | None = None) -> dict:
@@ -68,9 +91,11 @@ def derived(case: Case, ranks: int | None = None) -> dict:
     }
     # the product pass the run will choose, all ranks on one node
     full = nfields == 3
+    tracers = len(case.tracers)
     blocks = choose_product_pass(case.get("compute.product_pass"),
-                                 product_fields(full) * nx * ny * nz * 8) == "blocks"
-    per_point = bytes_per_point(nfields, ranks or 1, blocks)
+                                 product_fields(int(full) + tracers) * nx * ny * nz * 8) == "blocks"
+    per_point = bytes_per_point(nfields, ranks or 1, blocks, tracers)
+    out["tracers"] = tracer_lines(case)
     out["product pass"] = "block-wise" if blocks else "whole arrays"
     out["expected memory"] = per_point * nx * ny * nz + LIBRARY_BYTES * (ranks or 1)
     out["bytes per point"] = per_point

@@ -77,6 +77,11 @@ def cmd_check(args) -> int:
     info = derived(case, args.ranks)
     print(f"case {case.name} ({args.case}): valid")
     for key, value in info.items():
+        if key == "tracers":
+            print(f"  {'passive tracers':34s} {len(value) or 'none'}")
+            for line in value:
+                print(f"    {line}")
+            continue
         if key == "expected memory":
             value = (f"{value / 2 ** 20:.0f} MiB (estimate, with ~250 MiB per rank for "
                      "Python and its libraries)")
