@@ -20,7 +20,8 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False, tracers:
     (solution, stage, tendency) of the ``nfields`` flow fields and of each of the
     ``tracers`` passive tracers; the implicit coefficient arrays (2 for the
     low-Peclet model, 4 for the full one, and with tracers the ``|k|^2`` and
-    ``alpha`` tables all of them share); the transform's physical planning
+    ``alpha`` tables all of them share, ``alpha`` being the full model's own
+    ``L[T, p]``); the transform's physical planning
     buffer; one spectral array per product field (5, plus 3 per advected scalar:
     temperature in the full model, each tracer). With whole arrays (``blocks``
     False): as many physical arrays (one of them the planning buffer) and, on
@@ -32,7 +33,9 @@ def bytes_per_point(nfields: int, ranks: int = 1, blocks: bool = False, tracers:
     full = nfields == 3
     total = 3 * (nfields + tracers) * spectral + (4 if full else 2) * real_spectral + physical
     if tracers:
-        total += 2 * real_spectral  # the shared tables of the compiled follower update
+        # the tables the compiled follower update shares: |k|^2, and alpha, which the
+        # full model holds already (its temperature coupling L[T, p] = alpha)
+        total += (1 if full else 2) * real_spectral
     products = product_fields(int(full) + tracers)
     total += products * spectral
     if blocks:
