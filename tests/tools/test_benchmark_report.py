@@ -96,3 +96,30 @@ def test_phases_on_two_ranks_include_the_waits():
     # the two ranks' work adds up to one rank's: 4 fields in, 8 out, 16 planes
     for phase, planes in (("yz inverse", 4 * 4 * 16), ("yz forward", 4 * 8 * 16)):
         assert sum(w[phase] for w in rec["work_per_step"]) == planes
+
+
+def test_worker_counts_the_transforms_of_each_tracer():
+    """Per explicit stage a tracer adds 1 inverse (c) and 3 forward transforms (uc, vc, wc),
+    as temperature does in the full model (docs/equations.md#tracers)."""
+    from steps import worker
+
+    from shearmix.solver.run.imex import TABLEAUX
+    stages = TABLEAUX["cb3c"].stages
+    for tracers in (1, 2):
+        rec = worker("lowpe", 16, 2, product_pass="blocks", tracers=tracers)
+        assert rec["tracers"] == tracers
+        assert rec["transforms_per_step"] == stages * (8 + 4 * tracers)
+
+
+def test_markdown_tracers_table_against_the_runs_without():
+    from steps import _against_no_tracers
+    none = [dict(_record("lowpe", 128, 1, 0.40, 0.32), tracers=0, peak_rss_bytes=100 * 128 ** 3)]
+    two = [dict(_record("lowpe", 128, 1, 0.52, 0.42), tracers=2, peak_rss_bytes=200 * 128 ** 3)]
+    rec = dict(two[0])
+    _against_no_tracers(rec, two, none, 2, 128)
+    assert rec["ratio_vs_no_tracers"] == pytest.approx((0.52 / 0.42) / (0.40 / 0.32))
+    assert rec["step_vs_no_tracers"] == pytest.approx(1.3)
+    assert rec["bytes_per_point_per_tracer"] == pytest.approx(50.0)
+    text = markdown({"version": "x", "machine": "m", "records": none + [rec], "extras": {}})
+    assert "| lowpe | 128^3 | 1 | 0 | 0.4000 | 0.3200 | 1.25 |" in text
+    assert "| lowpe | 128^3 | 1 | 2 | 1.24 | 0.990 | 0.990 - 0.990 | 1.30 | 50 |" in text
