@@ -2,7 +2,8 @@
 
     warmup_probe.py warm    kernels.warm_up() alone
     warmup_probe.py steps   the production paths (both models, product passes and
-                            schemes; steps and diagnostics) without warm_up
+                            schemes, without and with a tracer; steps and
+                            diagnostics) without warm_up
 
 Prints, as JSON, the signatures every compiled kernel holds afterwards.
 """
@@ -31,14 +32,17 @@ def production_paths():
                           ("boussinesq", {"Re": 50.0, "B": 1.0, "Pr": 1.0})):
         for product_pass in ("blocks", "whole"):
             for scheme in ("cb3c", "ars343"):
-                case = case_from_dict({
-                    "model": model, "parameters": params, "grid": {"Nx": 8, "Ny": 8, "Nz": 8},
-                    "time": {"t_end": 1.0, "scheme": scheme},
-                    "compute": {"fftw_effort": "estimate", "wisdom": "",
-                                "product_pass": product_pass}})
-                sim = Simulation(case)
-                sim.advance()
-                sim.diagnostics()
+                # without and with a passive tracer (its stage update is compiled apart)
+                for tracers in ({}, {"tracers": {"dye": {"Sc": 2.0}}}):
+                    case = case_from_dict({
+                        "model": model, "parameters": params,
+                        "grid": {"Nx": 8, "Ny": 8, "Nz": 8},
+                        "time": {"t_end": 1.0, "scheme": scheme},
+                        "compute": {"fftw_effort": "estimate", "wisdom": "",
+                                    "product_pass": product_pass}, **tracers})
+                    sim = Simulation(case)
+                    sim.advance()
+                    sim.diagnostics()
 
 
 if __name__ == "__main__":

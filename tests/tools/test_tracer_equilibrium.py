@@ -75,6 +75,12 @@ def test_summary_lists_the_tracers(run):
     lines = r.stdout.splitlines()
     at = lines.index("  tracer salt  (Sc 4, Pe_c 40, G 0.5)")
     assert [ln.split()[0] for ln in lines[at + 1:at + 5]] == ["D_c", "D_chi", "c_rms", "kmax_etaB"]
+    assert "combined standard errors" not in r.stdout
+    # the threshold from the command line: any nonzero gap exceeds 0
+    r = subprocess.run([sys.executable, "-c", code, "summary", str(run), "--tracer-sigmas",
+                        "0"], env=env, capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.count("combined standard errors (> 0)") == 2
     row = summarize_run(run)
     # Batchelor 1959: kmax eta_B = kmax eta_K / sqrt(Sc) for Sc = 4
     assert row["kmax_etaB.salt"] == pytest.approx(row["kmax_etaK"] / 2, rel=1e-12)

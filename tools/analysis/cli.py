@@ -3,6 +3,7 @@
     shearmix summary RUN_DIR... [--start T] [--csv FILE] [--json FILE]
                      [--thresholds FILE.yaml] [--kmax-etak-min X]
                      [--min-correlation-times N] [--pe-turb-max X] [--segment N|all]
+                     [--tracer-sigmas X] [--tracer-drift-max F]
     shearmix fit TABLE.csv --x BPe --y Lz_turb [--range LO HI]
                  [--confidence C] [--no-errors]
     shearmix regimes evidence SUMMARY.csv [--thresholds FILE] [--markdown]
@@ -98,7 +99,8 @@ def cmd_summary(args):
         opts = SummaryOptions(start=args.start, kmax_etaK_min=args.kmax_etak_min,
                               min_correlation_times=args.min_correlation_times,
                               pe_turb_max=args.pe_turb_max, thresholds=th,
-                              segment=args.segment)
+                              segment=args.segment, tracer_sigmas=args.tracer_sigmas,
+                              tracer_drift_max=args.tracer_drift_max)
         rows = [summarize_run(d, opts) for d in args.run_dirs]
     except (ValueError, OSError) as exc:
         return _fail(str(exc))
@@ -260,6 +262,12 @@ def add_arguments(subparsers):
                    help="too-short warning below this many autocorrelation times (default 50)")
     p.add_argument("--pe-turb-max", type=float, default=1.0, metavar="X",
                    help="low-Peclet validity warning above this Pe_turb (default 1)")
+    p.add_argument("--tracer-sigmas", type=float, default=2.0, metavar="X",
+                   help="tracer not-at-equilibrium warning when D_c and D_chi differ by more "
+                        "than X combined standard errors (default 2)")
+    p.add_argument("--tracer-drift-max", type=float, default=0.1, metavar="F",
+                   help="... or when the c_rms means of the window's halves differ by more "
+                        "than this fraction (default 0.1)")
     p.add_argument("--segment", type=_segment, default=None, metavar="N|all",
                    help="segment of the series to average: a number (0 the first, -1 the last, "
                         "the default) or 'all' to cross the changes (with a warning)")
