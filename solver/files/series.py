@@ -27,8 +27,10 @@ from shearmix.solver.version import __version__
 
 SERIES_FILE = "timeseries.h5"
 
-#: Case keys (and key prefixes ending in '.') whose change starts a new segment.
-SEGMENT_KEYS = ("model", "parameters.", "forcing.", "grid.", "box.")
+#: Case keys (and key prefixes ending in '.') whose change starts a new segment. A
+#: tracer added, removed or changed at a restart starts one too: its statistics
+#: begin there (the flow's may be averaged across with ``--segment all``).
+SEGMENT_KEYS = ("model", "parameters.", "forcing.", "grid.", "box.", "tracers.")
 _SEGMENT_ATTRS = ("segment_steps", "segment_times", "segment_cases", "segment_versions")
 
 

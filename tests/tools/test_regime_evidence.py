@@ -37,7 +37,7 @@ def read(path):
 
 def test_order_split_and_interval(tmp_path):
     ev = {e["name"]: e for e in threshold_evidence(read(write_table(tmp_path / "s.csv")))}
-    iso = ev["isotropy_min"]  # 0.6, isotropic when isotropy >= 0.6
+    iso = ev["isotropy_min"]  # 0.55, isotropic when isotropy >= 0.55
     assert [p[0] for p in iso["points"]] == ["b100", "b10", "b1", "b0.1"]  # increasing isotropy
     assert [p[4] for p in iso["points"]] == [False, False, False, True]
     # any threshold in (0.45, 0.8] keeps b0.1 alone isotropic
@@ -56,12 +56,12 @@ def test_order_split_and_interval(tmp_path):
 
 def test_text_puts_the_marker_between_the_members(tmp_path):
     text = format_evidence(threshold_evidence(read(write_table(tmp_path / "s.csv"))))
-    block = text.split("isotropy_min = 0.6:")[1].split("\n\n")[0].splitlines()
+    block = text.split("isotropy_min = 0.55:")[1].split("\n\n")[0].splitlines()
     names = [ln.split()[0] for ln in block if ln.startswith("  b")]
-    marker = next(i for i, ln in enumerate(block) if ln.startswith("  -- isotropy_min = 0.6"))
+    marker = next(i for i, ln in enumerate(block) if ln.startswith("  -- isotropy_min = 0.55"))
     before = [ln.split()[0] for ln in block[:marker] if ln.startswith("  b")]
     assert names == ["b100", "b10", "b1", "b0.1"] and before == ["b100", "b10", "b1"]
-    assert "1 of 4 members satisfy isotropy >= 0.6; any isotropy_min in (0.45, 0.8] splits" in text
+    assert "1 of 4 members satisfy isotropy >= 0.55; any isotropy_min in (0.45, 0.8] splits" in text
     assert "without a finite isotropy: b300" in text
 
 

@@ -110,7 +110,7 @@ def test_thresholds_file_docs_and_yaml(tmp_path):
     # docs/equations.md#regimes shows the same table `shearmix regimes thresholds --markdown` prints
     eq = open(os.path.join(ROOT, "docs/equations.md"), encoding="utf-8").read()
     assert thresholds_markdown(th) in eq
-    assert "provisional, to be placed by the campaign" in eq
+    assert "placed by the Re = 50 campaign where it can" in eq
     p = tmp_path / "th.yaml"
     p.write_text("eta_min: 0.5\n")
     t2 = RegimeThresholds.from_yaml(p)

@@ -174,3 +174,32 @@ def test_fit_says_which_segments_and_warns_across(tmp_path, cli):
               tmp_path / "old.csv")
     res = cli("fit", str(tmp_path / "old.csv"), "--x", "BPe", "--y", "D_flux")
     assert "records no segments" in res.stdout
+
+
+def test_adding_a_tracer_at_a_restart_begins_a_segment(tmp_path, cli):
+    """The tracer's statistics start at its restart: the summary's default (last)
+    segment holds only records with the tracer, so its averages have no records
+    from before it existed and no warning about skipped ones."""
+    case = tmp_path / "tiny.yaml"
+    case.write_text(CASE)
+    run = tmp_path / "run"
+    assert cli("run", str(case), "-o", str(run)).returncode == 0
+    with h5py.File(run / "timeseries.h5", "r") as fh:
+        t_restart = float(fh["t"][-1])
+    assert cli("run", str(case), "-o", str(run), "--restart", "latest", "--set", "time.max_steps=160",
+               "--set", "tracers.dye.Sc=1", "--set", "tracers.dye.initial.kind=mode").returncode == 0
+    from shearmix.solver.files.series import read_series, segments_of
+    s = read_series(str(run / "timeseries.h5"))
+    segs = segments_of(s["attrs"])
+    assert len(segs) == 2 and segs[1]["t"] == pytest.approx(t_restart)
+    assert "dye" in yaml.safe_load(segs[1]["case"])["tracers"]
+    after = s["t"] >= segs[1]["t"]
+    assert np.all(np.isnan(s["c_rms.dye"][~after])) and np.all(np.isfinite(s["c_rms.dye"][after]))
+    res = cli("summary", str(run), "--start", str(t_restart), "--json", str(tmp_path / "row.json"))
+    assert res.returncode == 0, res.stderr
+    import json
+    row = json.load(open(tmp_path / "row.json"))
+    row = row[0] if isinstance(row, list) else row
+    assert row["segment"] == 1 and row["segments"] == 2
+    assert not any("non-finite" in w for w in row["warnings"])
+    assert row["c_rms.dye"] > 0

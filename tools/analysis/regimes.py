@@ -53,8 +53,8 @@ fluctuations' isotropy) and ``viscous_ratio`` from ``Lz_turb`` and that
 ``u_h``; the result says so in ``basis`` and ``fallback``.
 
 Every threshold is a field of :class:`RegimeThresholds`. The defaults are this
-tool's own choice, provisional, to be placed by the campaign
-(docs/equations.md#regimes; ``shearmix regimes evidence`` prints where each one
+tool's own choice, placed by the Re = 50 campaign where its members
+constrain them (docs/equations.md#regimes, docs/campaign.md; ``shearmix regimes evidence`` prints where each one
 falls among a sweep's members). They are **not** a published criterion.
 """
 from __future__ import annotations
@@ -88,7 +88,8 @@ def _rule(number, op, label):
 class RegimeThresholds:
     """Thresholds of :func:`flow_state` and :func:`classify`, all in one place.
 
-    Provisional defaults, a choice of this tool, to be placed by the campaign
+    Defaults, a choice of this tool, placed where the Re = 50 campaign
+    (docs/campaign.md) could place them and marked where it could not
     (docs/equations.md#regimes); ``configs/regime-thresholds.yaml`` holds the
     same values (``shearmix regimes thresholds --yaml`` writes it). Each
     field's ``metadata`` names the number it is compared with, the comparison
@@ -99,7 +100,7 @@ class RegimeThresholds:
     """``viscous_layers`` when ``viscous_ratio = Lz_jets / l_nu`` is below this
     (1: the layer Reynolds number ``viscous_ratio^2`` below 1)."""
 
-    isotropy_min: float = field(default=0.6, metadata=_rule("isotropy", ">=", "isotropic"))
+    isotropy_min: float = field(default=0.55, metadata=_rule("isotropy", ">=", "isotropic"))
     """``isotropic`` when the fluctuations' ``w'/u'_h`` is at or above this."""
 
     quiet_fraction_max: float = field(default=0.2, metadata=_rule("quiet_fraction", ">", "intermittent"))
@@ -189,7 +190,7 @@ def thresholds_yaml(th=None):
     """The thresholds as the commented YAML file ``--thresholds`` reads."""
     th = th or RegimeThresholds()
     lines = ["# Regime thresholds (shearmix summary / sweep summarize --thresholds FILE).",
-             "# Provisional defaults, a choice of this tool, to be placed by the campaign:",
+             "# Defaults, a choice of this tool, placed by the Re = 50 campaign where it can:",
              "# docs/equations.md#regimes. Regenerate: shearmix regimes thresholds --yaml"]
     import textwrap
     for name, number, op, label, doc in th.rules():

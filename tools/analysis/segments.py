@@ -1,6 +1,7 @@
 """The segments of a run's time series: the stretches between changes of the physics or grid.
 
-A restart that changes the parameters, the forcing, the model or the grid
+A restart that changes the parameters, the forcing, the model, the grid, the box
+or the tracers
 begins a new segment (:mod:`shearmix.solver.files.series` records where and
 with which case). Averages, fits and regime labels mean something only
 within one segment; :func:`split` cuts the records of
