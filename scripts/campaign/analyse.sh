@@ -26,6 +26,9 @@ cp "$DIR/analysis/regime-map.png" "$DIR/analysis/scaling.png" "$OUT/"
     > "$DIR/analysis/stratified.txt"
 cp "$DIR/analysis/stratified/fits.csv" "$OUT/fits-stratified.csv"
 "$SM" regimes evidence "$OUT/summary.csv" --markdown > "$OUT/evidence.md"
+# the jets' vertical scale is not among the sweep's fitted quantities: fitted here
+{ "$SM" fit "$OUT/summary.csv" --x BPe --y Lz_jets --range "$LO" "$HI"
+  "$SM" fit "$OUT/summary.csv" --x BPe --y Lz_jets; } 2>/dev/null | grep -v "segment" > "$OUT/fits-jets.txt"
 
 # the extras, each beside its member: finer grid, full model
 rows=()

@@ -82,11 +82,18 @@ def tracers(rows, names=("sc1", "sc10")):
     return _table(head, body)
 
 
+def _short(w):
+    """A warning in a table cell: the segment notice shortened to its start time."""
+    if w.startswith("segment ") and "(from t = " in w:
+        return "window segment from t = " + w.split("(from t = ", 1)[1].split(",", 1)[0]
+    return w.replace("|", "/")
+
+
 def warnings(rows):
     body = []
     for r in rows:
-        w = (r.get("warnings") or "").strip()
-        body.append([_bpe(r) if "BPe" in r else r.get("run", "-"), w.replace("|", "/") or "-"])
+        ws = [_short(w.strip()) for w in (r.get("warnings") or "").split(";") if w.strip()]
+        body.append([_bpe(r) if "BPe" in r else r.get("run", "-"), "; ".join(ws) or "-"])
     return _table(["BPe / run", "warnings"], body)
 
 
@@ -102,9 +109,9 @@ def fits(rows):
 
 
 def extras(rows):
-    head = ["run", "model", "grid", "window", "eta", "w_rms", "Lz_turb", "Lz_jets",
+    head = ["run", "model", "window", "eta", "w_rms", "Lz_turb", "Lz_jets",
             "isotropy", "D_estimate", "D_c.sc1", "D_c.sc10", "kmax eta_K", "regime"]
-    body = [[r.get("run", "-"), r.get("model", "-"), r.get("grid", "-"),
+    body = [[r.get("run", "-"), r.get("model", "-"),
              f"{_fmt(_num(r, 't_start'), 4)}-{_fmt(_num(r, 't_end'), 4)}", _pm(r, "eta"),
              _pm(r, "w_rms"), _pm(r, "Lz_turb"), _pm(r, "Lz_jets"), _fmt(_num(r, "isotropy")),
              _pm(r, "D_estimate"), _pm(r, "D_c.sc1"), _pm(r, "D_c.sc10"), _pm(r, "kmax_etaK"),
