@@ -1,9 +1,10 @@
 """Markdown tables of docs/campaign.md from the committed CSV files of docs/campaign/.
 
-    python scripts/campaign/tables.py [DIR]      (default DIR: docs/campaign)
+    python scripts/campaign/tables.py [DIR] [--fill PAGE]   (default DIR: docs/campaign)
 
-Prints the tables; docs/campaign.md quotes them as printed, so the page and the
-CSV files cannot drift apart. Columns a table does not have print as '-'.
+Prints the tables, or with ``--fill`` writes each between the page's markers
+``<!-- tables:TITLE -->`` and ``<!-- end -->`` (docs/campaign.md), so the page
+and the CSV files cannot drift apart. Columns a table lacks print as '-'.
 """
 from __future__ import annotations
 
@@ -126,15 +127,43 @@ def _read(path):
         return list(csv.DictReader(fh))
 
 
-def main(argv):
-    d = argv[1] if len(argv) > 1 else os.path.join(os.path.dirname(__file__), "..", "..",
-                                                   "docs", "campaign")
+def tables(d):
+    """``{title: markdown}`` of every table from the CSV files in ``d``."""
     summary = sorted(_read(os.path.join(d, "summary.csv")), key=lambda r: _num(r, "BPe"))
-    for title, text in (("Averages", averages(summary)), ("Numbers behind the labels", numbers(summary)),
-                        ("Tracers", tracers(summary)), ("Warnings", warnings(summary)),
-                        ("Fits, all members", fits(_read(os.path.join(d, "fits.csv")))),
-                        ("Fits, stratified range", fits(_read(os.path.join(d, "fits-stratified.csv")))),
-                        ("Extras", extras(_read(os.path.join(d, "extras.csv"))))):
+    return {"Averages": averages(summary), "Numbers behind the labels": numbers(summary),
+            "Tracers": tracers(summary), "Warnings": warnings(summary),
+            "Fits, all members": fits(_read(os.path.join(d, "fits.csv"))),
+            "Fits, stratified range": fits(_read(os.path.join(d, "fits-stratified.csv"))),
+            "Extras": extras(_read(os.path.join(d, "extras.csv")))}
+
+
+def fill(page, found):
+    """Replace the text between each ``<!-- tables:TITLE -->`` and the next
+    ``<!-- end -->`` of ``page`` by that table."""
+    text = open(page, encoding="utf-8").read()
+    for title, table in found.items():
+        start = f"<!-- tables:{title} -->"
+        if start not in text:
+            continue
+        i = text.index(start) + len(start)
+        j = text.index("<!-- end -->", i)
+        text = text[:i] + "\n" + table + "\n" + text[j:]
+    open(page, "w", encoding="utf-8").write(text)
+
+
+def main(argv):
+    args = argv[1:]
+    page = None
+    if "--fill" in args:
+        k = args.index("--fill")
+        page = args[k + 1]
+        del args[k:k + 2]
+    d = args[0] if args else os.path.join(os.path.dirname(__file__), "..", "..", "docs", "campaign")
+    found = tables(d)
+    if page:
+        fill(page, found)
+        return 0
+    for title, text in found.items():
         print(f"### {title}\n\n{text}\n")
     return 0
 
