@@ -14,7 +14,8 @@ SM="$VENV/bin/shearmix"
 SWEEP="$ROOT/configs/campaign/re50-bpe.yaml"
 DIR="$ROOT/runs/campaign-re50"
 OUT=${1:-$ROOT/docs/campaign}
-# the stratified-turbulence range of the fits (BPe), from the labels of the table
+# the stratified-turbulence range of the fits (BPe): the decade around the spin-up's
+# mixing-efficiency peak, fixed before the windows ran
 LO=${FIT_LO:-1}
 HI=${FIT_HI:-30}
 mkdir -p "$OUT" "$DIR/analysis"
