@@ -109,7 +109,16 @@ def test_compiled_stage_update_matches_its_numpy_definition(make_case, model, pa
     case = make_case(model=model, parameters=params, grid={"Nx": 12, "Ny": 12, "Nz": 8},
                      initial={"kind": "rest"})
     sim = Simulation(case)
-    rng = np.random.default_rng(3)
+    for g, r in _compiled_and_numpy_stage(sim, seed=3, last=last):
+        assert np.abs(g - r).max() <= 1e-14 * np.abs(r).max()
+
+
+def _compiled_and_numpy_stage(sim, seed, last):
+    """One stage update of random band-limited registers ``x, y, z`` by the compiled
+    kernels and by stage_update_numpy: the pairs ``(compiled, numpy)`` of the
+    registers that hold results (after the last stage ``y`` is scratch: the NumPy
+    path leaves ``L y`` there)."""
+    rng = np.random.default_rng(seed)
     band = sim.grid.dealias.astype(bool)
     regs = []
     for _ in range(3):
@@ -119,12 +128,9 @@ def test_compiled_stage_update_matches_its_numpy_definition(make_case, model, pa
     got = [r.copy() for r in regs]
     kernels.set_backend("numba")
     kernels.stage_update(sim.operator, *got, *args)
-    kernels.set_backend("numba")
     ref = [r.copy() for r in regs]
     kernels.stage_update_numpy(sim.operator, *ref, *args)
-    # after the last stage the stage register y is scratch (the NumPy path leaves L y there)
-    for g, r in zip(got[:1 if last else 2], ref[:1 if last else 2]):
-        assert np.abs(g - r).max() <= 1e-14 * np.abs(r).max()
+    return list(zip(got[:1 if last else 2], ref[:1 if last else 2]))
 
 
 @pytest.mark.parametrize("model,params", [("lowpe", {"Re": 80.0, "BPe": 2.0}),
@@ -149,24 +155,34 @@ def test_compiled_follower_stage_matches_its_numpy_definition(make_case, model, 
         assert np.array_equal(cl * tl.reshape(shape), np.broadcast_to(op.entry(f, lead), shape))
     # one |k|^2 table and one alpha table serve both tracers
     assert tables[0][3] is tables[1][3] and tables[0][5] is tables[1][5]
-    rng = np.random.default_rng(4)
-    band = sim.grid.dealias.astype(bool)
-    regs = []
-    for _ in range(3):
-        r = rng.standard_normal(sim.state.shape) + 1j * rng.standard_normal(sim.state.shape)
-        regs.append(r * band)
-    args = (0.013, -0.021, 0.007, 0.04, last)
-    got = [r.copy() for r in regs]
-    kernels.set_backend("numba")
-    kernels.stage_update(sim.operator, *got, *args)
-    ref = [r.copy() for r in regs]
-    kernels.stage_update_numpy(sim.operator, *ref, *args)
-    # after the last stage the stage register y is scratch (the NumPy path leaves L y there)
-    for g, r in zip(got[:1 if last else 2], ref[:1 if last else 2]):
+    _assert_followers_match(sim, last)
+
+
+def _assert_followers_match(sim, last):
+    for g, r in _compiled_and_numpy_stage(sim, seed=4, last=last):
         assert np.abs(g - r).max() <= 1e-14 * np.abs(r).max()
         # the followers' rows on their own scale (their values differ from the flow's)
-        for f, _ in op.followers:
+        for f, _ in sim.operator.followers:
             assert np.abs(g[f] - r[f]).max() <= 1e-14 * np.abs(r[f]).max()
+
+
+@pytest.mark.parametrize("last", [False, True])
+def test_followers_without_tables_take_the_numpy_rows(make_case, monkeypatch, last):
+    """A follower whose entries are not single monomials has no shared tables: the
+    compiled update then runs the flow compiled and the followers' NumPy rows
+    (apply_followers / solve_followers), with the same result."""
+    case = make_case(grid={"Nx": 12, "Ny": 12, "Nz": 8}, initial={"kind": "rest"},
+                     tracers={"salt": {"Sc": 7.0, "gradient": -1.5}})
+    sim = Simulation(case)
+    calls = []
+    apply_rows = sim.operator.apply_followers
+    monkeypatch.setattr(sim.operator, "follower_tables", lambda: None)
+    monkeypatch.setattr(sim.operator, "apply_followers",
+                        lambda y: (calls.append("apply"), apply_rows(y))[1])
+    _assert_followers_match(sim, last)
+    # the fallback rows ran: once in the compiled update, once in the NumPy reference's
+    # operator.apply (with the tables, only the latter)
+    assert calls.count("apply") == 2
 
 
 def test_compiled_frame_twins_match_the_basis_definitions(make_case):
